@@ -1,0 +1,10 @@
+"""Option strings accepted across :mod:`vintages`, as ``Literal`` aliases."""
+
+from __future__ import annotations
+
+from typing import Literal
+
+Freq = Literal["Q", "M"]
+Layout = Literal["long", "triangle"]
+FREQS: tuple[str, ...] = ("M", "Q")
+LAYOUTS: tuple[str, ...] = ("long", "triangle")
