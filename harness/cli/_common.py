@@ -1,0 +1,46 @@
+"""Shared CLI plumbing: turning library errors into one-line messages and exit codes."""
+
+from __future__ import annotations
+
+import functools
+import sys
+
+import typer
+
+DATA_ERROR = 1
+USAGE_ERROR = 2
+
+
+def fail(message: str, code: int = DATA_ERROR) -> None:
+    """Print ``error: message`` on stderr and exit with ``code``."""
+    typer.echo(f"error: {message}", err=True)
+    raise typer.Exit(code=code)
+
+
+def friendly(func):
+    """Run a command; expected failures become one line on stderr and exit code 1."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except typer.Exit:
+            raise
+        except KeyboardInterrupt:
+            typer.echo("interrupted", err=True)
+            raise typer.Exit(code=130) from None
+        except (ValueError, KeyError, FileNotFoundError, FileExistsError, RuntimeError, OSError) as exc:
+            msg = exc.args[0] if isinstance(exc, KeyError) and exc.args else str(exc)
+            typer.echo(f"error: {msg}".splitlines()[0] if "\n" in str(msg) and len(str(msg)) > 400
+                       else f"error: {msg}", err=True)
+            raise typer.Exit(code=DATA_ERROR) from None
+
+    return wrapper
+
+
+def echo_table(df, fmt: str = "table") -> None:
+    """Print a DataFrame as an aligned table or CSV on stdout."""
+    if fmt == "csv":
+        sys.stdout.write(df.to_csv(index=False))
+    else:
+        typer.echo(df.to_string(index=False) if len(df) else "(no rows)")

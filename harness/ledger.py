@@ -1,0 +1,199 @@
+"""The ledger: stored forecasts of a run (draws as float32) with their provenance.
+
+On disk, below the run directory::
+
+    RUN/tasks/<key>.parquet      one completed task: rows (variable, horizon, target_period, draws)
+    RUN/tasks/<key>.fail.json    one failed task: its traceback
+    RUN/ledger.parquet           the run's forecasts: model, origin, variable, horizon, target_period, draws
+    RUN/provenance.parquet       per task and variable: last observed period and its release date
+    RUN/run.json                 the run manifest: spec hash, store checksum, seed, versions, timings, tasks
+    RUN/spec.toml                a copy of the spec as run
+
+Task files are written atomically (temporary name, fsync, rename), so a run killed at any point
+keeps every task that finished, and a rerun picks up from there.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.parquet as pq
+import xarray as xr
+
+from harness.errors import RunError
+
+
+def _atomic_write(path: Path, data: bytes) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def task_path(cache_dir: Path, key: str) -> Path:
+    return Path(cache_dir) / f"{key}.parquet"
+
+
+def failure_path(cache_dir: Path, key: str) -> Path:
+    return Path(cache_dir) / f"{key}.fail.json"
+
+
+def write_task(cache_dir: Path, key: str, draws: xr.DataArray, target_periods: list[str], meta: dict) -> Path:
+    """Persist one task's draws (dims draw, variable, horizon) atomically; ``meta`` goes in the file's metadata."""
+    arr = np.asarray(draws.transpose("variable", "horizon", "draw").values, dtype=np.float32)
+    nv, nh, nd = arr.shape
+    variables = [str(v) for v in draws["variable"].values]
+    horizons = [int(h) for h in draws["horizon"].values]
+    flat = pa.array(arr.reshape(-1), type=pa.float32())
+    table = pa.table({
+        "variable": pa.array(np.repeat(variables, nh)),
+        "horizon": pa.array(np.tile(np.asarray(horizons, dtype=np.int16), nv)),
+        "target_period": pa.array(np.tile(np.asarray(target_periods, dtype=object), nv).astype(str)),
+        "draws": pa.FixedSizeListArray.from_arrays(flat, nd),
+    })
+    table = table.replace_schema_metadata({"task": json.dumps(meta, default=str)})
+    sink = pa.BufferOutputStream()
+    pq.write_table(table, sink, compression="zstd")
+    path = task_path(cache_dir, key)
+    _atomic_write(path, sink.getvalue().to_pybytes())
+    return path
+
+
+def write_failure(cache_dir: Path, key: str, record: dict) -> Path:
+    path = failure_path(cache_dir, key)
+    _atomic_write(path, (json.dumps(record, indent=1, default=str) + "\n").encode())
+    return path
+
+
+def read_task(cache_dir: Path, key: str) -> tuple[pa.Table, dict]:
+    t = pq.read_table(task_path(cache_dir, key))
+    return t, json.loads(t.schema.metadata[b"task"])
+
+
+def assemble(run_dir: Path, cache_dir: Path, tasks: list[dict]) -> tuple[Path, Path]:
+    """Gather the run's completed task files into ``ledger.parquet`` and ``provenance.parquet``."""
+    tables, prov = [], []
+    for t in tasks:
+        p = task_path(cache_dir, t["key"])
+        if t.get("status") != "ok" or not p.is_file():
+            continue
+        tab, meta = read_task(cache_dir, t["key"])
+        n = tab.num_rows
+        tab = tab.replace_schema_metadata(None)
+        tab = tab.add_column(0, "model", pa.array([t["model"]] * n))
+        tab = tab.add_column(1, "origin", pa.array(np.full(n, np.datetime64(t["origin"], "D"))).cast(pa.date32()))
+        tables.append(tab)
+        for var, (lp, rd) in meta.get("provenance", {}).items():
+            prov.append({"model": t["model"], "origin": t["origin"], "variable": var, "last_observed": lp,
+                         "source_release": rd})
+    run_dir = Path(run_dir)
+    if tables:
+        width = {tb.schema.field("draws").type.list_size for tb in tables}
+        if len(width) != 1:
+            raise RunError(f"{run_dir}: tasks hold different numbers of draws {sorted(width)}")
+        ledger = pa.concat_tables(tables)
+    else:
+        ledger = pa.table({"model": pa.array([], pa.string()), "origin": pa.array([], pa.date32()),
+                           "variable": pa.array([], pa.string()), "horizon": pa.array([], pa.int16()),
+                           "target_period": pa.array([], pa.string()),
+                           "draws": pa.array([], pa.list_(pa.float32(), 1))})
+    sink = pa.BufferOutputStream()
+    pq.write_table(ledger, sink, compression="zstd")
+    lp = run_dir / "ledger.parquet"
+    _atomic_write(lp, sink.getvalue().to_pybytes())
+    pp = run_dir / "provenance.parquet"
+    pdf = pd.DataFrame(prov, columns=["model", "origin", "variable", "last_observed", "source_release"])
+    _atomic_write(pp, pdf.to_parquet(index=False))
+    return lp, pp
+
+
+@dataclass
+class Ledger:
+    """A run's forecasts, read back for scoring without refitting.
+
+    Attributes
+    ----------
+    draws : xarray.DataArray, dims (model, origin, variable, horizon, draw), float32
+        NaN where a task failed or was not run.
+    target_period : xarray.DataArray, dims (origin, horizon), str
+        The target period label of each origin and horizon.
+    provenance : DataFrame
+        Per model, origin and variable: last observed period and its release date.
+    failures : DataFrame
+        model, origin, key, error, traceback of each failed task.
+    manifest : dict
+        The run manifest (``run.json``).
+    run_dir : Path
+    """
+
+    draws: xr.DataArray
+    target_period: xr.DataArray
+    provenance: pd.DataFrame
+    failures: pd.DataFrame
+    manifest: dict
+    run_dir: Path
+
+    @property
+    def models(self) -> list[str]:
+        return [str(m) for m in self.draws["model"].values]
+
+    def frame(self) -> pd.DataFrame:
+        """One row per forecast (model, origin, variable, horizon, target_period) with an ``ok`` flag."""
+        d = self.draws
+        idx = pd.MultiIndex.from_product([d["model"].values, d["origin"].values, d["variable"].values,
+                                          d["horizon"].values], names=["model", "origin", "variable", "horizon"])
+        f = idx.to_frame(index=False)
+        tp = self.target_period.sel(origin=f["origin"].to_xarray(), horizon=f["horizon"].to_xarray())
+        f["target_period"] = np.asarray(tp.values)
+        f["ok"] = ~np.isnan(d.values[..., 0]).reshape(-1)
+        return f
+
+
+def read_ledger(run_dir: str | Path) -> Ledger:
+    """Read a run directory's ledger as xarray (raises :class:`RunError` if there is none)."""
+    run_dir = Path(run_dir)
+    mpath = run_dir / "run.json"
+    if not mpath.is_file() or not (run_dir / "ledger.parquet").is_file():
+        raise RunError(f"{run_dir}: not a run directory (no run.json / ledger.parquet); run 'harness run SPEC' first")
+    manifest = json.loads(mpath.read_text())
+    t = pq.read_table(run_dir / "ledger.parquet")
+    models = list(manifest["models"])
+    origins = np.array(manifest["origins"], dtype="datetime64[D]")
+    variables = list(manifest["targets"])
+    horizons = np.array(manifest["horizons"], dtype=np.int64)
+    n_draws = int(manifest["draws"])
+    out = np.full((len(models), len(origins), len(variables), len(horizons), n_draws), np.nan, dtype=np.float32)
+    if t.num_rows:
+        df = t.select(["model", "origin", "variable", "horizon"]).to_pandas()
+        mi = pd.Index(models).get_indexer(df["model"])
+        oi = np.searchsorted(origins, df["origin"].to_numpy().astype("datetime64[D]"))
+        vi = pd.Index(variables).get_indexer(df["variable"])
+        hi = np.searchsorted(horizons, df["horizon"].to_numpy())
+        vals = t.column("draws").combine_chunks().flatten().to_numpy().reshape(t.num_rows, -1)
+        out[mi, oi, vi, hi] = vals
+    draws = xr.DataArray(out, dims=("model", "origin", "variable", "horizon", "draw"),
+                         coords={"model": models, "origin": origins.astype("datetime64[ns]"), "variable": variables,
+                                 "horizon": horizons, "draw": np.arange(n_draws)}, name="draws")
+    tp = np.array(manifest["target_periods"], dtype=object)
+    target_period = xr.DataArray(tp, dims=("origin", "horizon"),
+                                 coords={"origin": origins.astype("datetime64[ns]"), "horizon": horizons})
+    prov = pd.read_parquet(run_dir / "provenance.parquet") if (run_dir / "provenance.parquet").is_file() \
+        else pd.DataFrame()
+    fails = pd.DataFrame(manifest.get("failures", []),
+                         columns=["model", "origin", "key", "error", "traceback"])
+    return Ledger(draws, target_period, prov, fails, manifest, run_dir)
