@@ -107,9 +107,29 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
     from harness.runner import run
     from harness.spec import load_spec
 
+    from harness.evaluate import evaluate, save
+    from harness.reporting import make_report
+    from harness.sensitivity import sensitivity
+    from harness.textable import relative_text
+
     spec = load_spec(spec_path)
+    echo(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast")
     res = run(spec, jobs=jobs)
     echo(res.summary())
     paths["run"] = res.run_dir
+    t1 = time.perf_counter()
+    ev = evaluate(res.run_dir)
+    save(ev, res.run_dir / "scores")
+    echo(relative_text(ev, "crps", subperiods=["full", "recession"]))
+    echo(f"scores ({time.perf_counter() - t1:.1f}s) in {res.run_dir / 'scores'}")
+    t2 = time.perf_counter()
+    echo("revision sensitivity: scoring under several truths and rerunning on revised (pseudo-real-time) data")
+    sens = sensitivity(spec, run_dir=res.run_dir, jobs=jobs, progress=True)
+    sens.save(res.run_dir / "sensitivity")
+    echo(sens.summary())
+    echo(f"sensitivity ({time.perf_counter() - t2:.1f}s) in {res.run_dir / 'sensitivity'}")
+    rep = make_report(res.run_dir, out=out / "report", sensitivity=sens, evaluation=ev, echo=echo)
+    paths["report"] = rep["html"]
     echo(f"demo finished in {time.perf_counter() - t0:.1f}s")
+    echo(f"report: {rep['html']}")
     return paths

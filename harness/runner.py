@@ -65,6 +65,7 @@ class Plan:
     models: dict
     tasks: list[Task]
     timings: dict = field(default_factory=dict)
+    store_batches: int = 0
 
     def explain(self) -> str:
         """A human-readable description of the resolved plan (``harness run --explain``)."""
@@ -157,7 +158,8 @@ def make_plan(spec: Spec) -> Plan:
             sk = seed_key(ms.name, o)
             tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk), sk, i))
     return Plan(spec, store.checksum(), origins, infos, targets, models, tasks,
-                {"store_and_origins": t1 - t0, "infosets": t2 - t1, "keys": time.perf_counter() - t2})
+                {"store_and_origins": t1 - t0, "infosets": t2 - t1, "keys": time.perf_counter() - t2},
+                store_batches=len(store.manifest()["batches"]))
 
 
 def _validate_draws(da, targets, n_draws):
@@ -324,6 +326,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
         "spec_hash": spec.hash(),
         "store": str(spec.store),
         "store_checksum": plan.store_checksum,
+        "store_batches": plan.store_batches,
         "mode": spec.mode,
         "policy": spec.policy,
         "freq": spec.freq,

@@ -21,3 +21,7 @@ workflow_cmd.register(app)
 def main() -> None:
     """Entry point of the ``harness`` console script."""
     app()
+
+
+if __name__ == "__main__":
+    main()

@@ -63,7 +63,74 @@ def demo_cmd(
     run_demo(out, data_only=data_only, small=small, jobs=jobs, echo=typer.echo)
 
 
+@friendly
+def score_cmd(
+    run_dir: RunArg,
+    truth: Annotated[str | None, typer.Option(help="Truth to score against: first, release:K, lag:NNND, latest, "
+                                              "asof:YYYY-MM-DD (default: the spec's).")] = None,
+    out: Annotated[Path | None, typer.Option(help="Write the per-forecast scores to this CSV file "
+                                             "(tables beside it).")] = None,
+    score: Annotated[str, typer.Option(help="Score shown in the terminal tables (crps, se_mean, log_score, …).")] = "crps",
+) -> None:
+    """Score a run against a truth (no refitting) and print relative-score tables with tests."""
+    from harness.evaluate import evaluate, save
+    from harness.textable import relative_text
+
+    ev = evaluate(run_dir, truth)
+    typer.echo(relative_text(ev, score))
+    typer.echo(f"sub-periods: recession/expansion from {ev.chronology_source}")
+    if len(ev.missing):
+        typer.echo(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
+    if out is not None:
+        cols = [c for c in ev.forecasts.columns if c != "subperiods"]
+        f = ev.forecasts[cols].copy()
+        f["subperiods"] = ev.forecasts["subperiods"].map(";".join)
+        tmp = out.with_name(out.name + ".tmp")
+        f.to_csv(tmp, index=False)
+        tmp.replace(out)
+        save(ev, out.parent / (out.stem + "_tables"))
+        typer.echo(f"wrote {out} and tables in {out.parent / (out.stem + '_tables')}")
+
+
+@friendly
+def sensitivity_cmd(
+    spec: SpecArg,
+    truth: Annotated[list[str] | None, typer.Option(help="Truths to compare (repeatable); default: the spec's "
+                                                    "[scoring] truths.")] = None,
+    jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1, help="Parallel workers.")] = None,
+    backend: Annotated[Backend, typer.Option(help="joblib backend for the pseudo-real-time rerun.")] = Backend.loky,
+    out: Annotated[Path | None, typer.Option(help="Directory for the CSV tables (default: RUN/sensitivity).")] = None,
+    no_data: Annotated[bool, typer.Option("--no-data-check", help="Skip the pseudo-real-time rerun.")] = False,
+) -> None:
+    """How much does the verdict depend on data revisions? Truths side by side, real-time vs revised data."""
+    from harness.sensitivity import sensitivity
+    from harness.spec import load_spec
+
+    s = load_spec(spec)
+    res = sensitivity(s, truths=truth or None, jobs=jobs, backend=backend.value, progress=True, data=not no_data)
+    dest = res.save(out or (s.out / "sensitivity"))
+    typer.echo(res.summary())
+    typer.echo(f"tables written to {dest}")
+
+
+@friendly
+def report_cmd(
+    run_dir: RunArg,
+    out: Annotated[Path | None, typer.Option(help="Output directory (default: RUN/report).")] = None,
+    since: Annotated[Path | None, typer.Option(help="An earlier run directory: add 'what changed since the last review'.")] = None,
+    truth: Annotated[str | None, typer.Option(help="Truth for the tables (default: the spec's).")] = None,
+) -> None:
+    """Write the self-contained HTML review report (plus Markdown, LaTeX and CSV tables)."""
+    from harness.reporting import make_report
+
+    paths = make_report(run_dir, out=out, since=since, truth=truth, echo=typer.echo)
+    typer.echo(f"report: {paths['html']}")
+
+
 def register(app: typer.Typer) -> None:
     """Attach the workflow commands to the top-level app."""
     app.command("run")(run_cmd)
+    app.command("score")(score_cmd)
+    app.command("sensitivity")(sensitivity_cmd)
+    app.command("report")(report_cmd)
     app.command("demo")(demo_cmd)

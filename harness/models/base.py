@@ -1,0 +1,462 @@
+"""The model protocol, the registry of model classes, and conveniences shared by the built-ins.
+
+A model is any object with a ``name``, a ``version``, ``params()`` and
+``forecast(info, targets, n_draws, rng) -> xarray.DataArray`` (dims ``draw, variable, horizon``).
+:class:`ForecastModel` states this as a :class:`typing.Protocol`; :class:`BaseModel` is an optional
+base class that derives ``params()`` from the constructor's signature and offers the helpers the
+built-in models share (input checks, the target layout, the output array).
+
+Laws every model obeys (checked by :func:`harness.testing.check_model`):
+
+* the draws depend only on the information set and on the generator passed in;
+* a target already observed in the information set is returned as its observed value in every draw;
+* ``type(model)(**model.params())`` forecasts exactly like ``model``.
+"""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+from dataclasses import dataclass
+from typing import Any, ClassVar, Literal, Protocol, runtime_checkable
+
+import numpy as np
+import xarray as xr
+
+from harness.models.errors import (
+    InsufficientDataError,
+    ModelError,
+    ModelParameterError,
+    UnknownModelError,
+)
+from vintages.infoset import InfoSet, Targets
+
+__all__ = [
+    "BaseModel",
+    "Density",
+    "ForecastModel",
+    "InsufficientDataError",
+    "ModelError",
+    "ModelParameterError",
+    "MeanKind",
+    "ShockKind",
+    "TargetLayout",
+    "UnknownModelError",
+    "available_models",
+    "get_model_class",
+    "make_model",
+    "register",
+]
+
+Density = Literal["gaussian", "empirical"]
+MeanKind = Literal["zero", "sample"]
+ShockKind = Literal["gaussian", "student"]
+DIMS: tuple[str, str, str] = ("draw", "variable", "horizon")
+
+
+@runtime_checkable
+class ForecastModel(Protocol):
+    """What the runner needs from a model (duck typing; no base class required)."""
+
+    name: str
+    version: str
+
+    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
+                 rng: np.random.Generator) -> xr.DataArray:
+        """Predictive draws, dims ``(draw, variable, horizon)``, using only ``info`` and ``rng``."""
+        ...
+
+    def params(self) -> dict[str, Any]:
+        """JSON-able hyperparameters such that ``type(self)(**self.params())`` is equivalent."""
+        ...
+
+
+# ---------------------------------------------------------------------------- registry
+_REGISTRY: dict[str, type] = {}
+
+
+def register(cls: type) -> type:
+    """Class decorator: make a model class available under its ``name``.
+
+    Parameters
+    ----------
+    cls : type
+        A class with a non-empty ``name: str``, a ``version: str`` and a ``forecast`` method.
+
+    Returns
+    -------
+    type
+        ``cls`` unchanged.
+
+    Raises
+    ------
+    TypeError
+        If ``cls`` lacks a string ``name``/``version`` or a ``forecast`` method.
+    ValueError
+        If another class is already registered under the same name.
+    """
+    name = getattr(cls, "name", None)
+    if not isinstance(name, str) or not name:
+        raise TypeError(f"cannot register {cls!r}: expected a non-empty class attribute 'name: str', "
+                        f"got {name!r}")
+    if not isinstance(getattr(cls, "version", None), str):
+        raise TypeError(f"cannot register model {name!r}: expected a class attribute 'version: str', "
+                        f"got {getattr(cls, 'version', None)!r}")
+    if not callable(getattr(cls, "forecast", None)):
+        raise TypeError(f"cannot register model {name!r}: the class has no 'forecast' method")
+    old = _REGISTRY.get(name)
+    # re-registering the same class (a module reload) is harmless; a different class is a clash
+    if old is not None and (old.__module__, old.__qualname__) != (cls.__module__, cls.__qualname__):
+        raise ValueError(f"model name {name!r} is already registered to "
+                         f"{old.__module__}:{old.__qualname__}; cannot register "
+                         f"{cls.__module__}:{cls.__qualname__}")
+    _REGISTRY[name] = cls
+    return cls
+
+
+def _load_builtins() -> None:
+    # the package's __init__ imports every built-in model module, which registers them
+    importlib.import_module("harness.models")
+
+
+def available_models() -> list[str]:
+    """Registered model names, sorted."""
+    _load_builtins()
+    return sorted(_REGISTRY)
+
+
+def get_model_class(name_or_path: str | type) -> type:
+    """Resolve a registered name or a ``package.module:Class`` path to a model class.
+
+    Parameters
+    ----------
+    name_or_path : str or type
+        A registered name (see :func:`available_models`), a path ``package.module:Class``
+        (``Class`` may be dotted for nested classes), or a model class (returned unchanged).
+
+    Returns
+    -------
+    type
+        The model class.
+
+    Raises
+    ------
+    UnknownModelError
+        If the name is not registered, the module cannot be imported, or the attribute is
+        missing or is not a model class (no ``forecast`` method).
+    """
+    if isinstance(name_or_path, type):
+        cls = name_or_path
+    elif not isinstance(name_or_path, str):
+        raise UnknownModelError(f"model type must be a registered name or 'package.module:Class', "
+                                f"got {type(name_or_path).__name__} {name_or_path!r}")
+    elif ":" in name_or_path:
+        cls = _import_path(name_or_path, what="model class")
+    else:
+        _load_builtins()
+        try:
+            cls = _REGISTRY[name_or_path]
+        except KeyError:
+            raise UnknownModelError(
+                f"unknown model {name_or_path!r}; expected one of {sorted(_REGISTRY)} "
+                f"or a path 'package.module:Class'") from None
+    if not isinstance(cls, type) or not callable(getattr(cls, "forecast", None)):
+        raise UnknownModelError(f"{name_or_path!r} resolves to {cls!r}, which is not a model class "
+                                f"(expected a class with a 'forecast' method)")
+    return cls
+
+
+def _import_path(path: str, *, what: str) -> Any:
+    """Import ``package.module:Attr.sub``; errors name the part that failed."""
+    mod_name, _, attr = path.partition(":")
+    if not mod_name or not attr:
+        raise UnknownModelError(f"{what} path {path!r} is malformed; expected 'package.module:Class'")
+    try:
+        obj: Any = importlib.import_module(mod_name)
+    except ImportError as exc:
+        raise UnknownModelError(f"{what} path {path!r}: cannot import module {mod_name!r} ({exc})") from exc
+    for part in attr.split("."):
+        try:
+            obj = getattr(obj, part)
+        except AttributeError:
+            raise UnknownModelError(f"{what} path {path!r}: module {mod_name!r} has no attribute "
+                                    f"{attr!r}") from None
+    return obj
+
+
+def make_model(type_name: str | type, **params: Any) -> Any:
+    """Instantiate a model by registered name or path, checking the parameter names first.
+
+    Parameters
+    ----------
+    type_name : str or type
+        As for :func:`get_model_class`.
+    **params
+        Hyperparameters passed to the constructor.
+
+    Returns
+    -------
+    ForecastModel
+        The (unfitted) model.
+
+    Raises
+    ------
+    UnknownModelError
+        If ``type_name`` does not resolve.
+    ModelParameterError
+        If a parameter name is not accepted by the constructor (valid names are listed sorted).
+    """
+    cls = get_model_class(type_name)
+    sig = inspect.signature(cls.__init__)
+    takes_any = any(p.kind is p.VAR_KEYWORD for p in sig.parameters.values())
+    valid = sorted(p.name for p in sig.parameters.values()
+                   if p.name != "self" and p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY))
+    unknown = sorted(set(params) - set(valid))
+    if unknown and not takes_any:
+        raise ModelParameterError(f"model {getattr(cls, 'name', cls.__name__)!r}: unknown parameter(s) "
+                                  f"{unknown}; valid parameters: {valid}")
+    return cls(**params)
+
+
+# ---------------------------------------------------------------------------- base class
+class BaseModel:
+    """Optional base class: ``params()`` from the constructor signature, shared helpers.
+
+    Subclasses store every constructor argument unchanged under the same attribute name and do
+    no work in ``__init__`` (validation happens in :meth:`forecast`); learned state ends in ``_``.
+    """
+
+    name: ClassVar[str] = ""
+    version: ClassVar[str] = "0"
+
+    @classmethod
+    def _param_names(cls) -> list[str]:
+        sig = inspect.signature(cls.__init__)
+        return [p.name for p in sig.parameters.values()
+                if p.name != "self" and p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+
+    def params(self) -> dict[str, Any]:
+        """The constructor arguments, as stored (JSON-able for the built-in models)."""
+        return {k: getattr(self, k) for k in self._param_names()}
+
+    def __repr__(self) -> str:
+        args = ", ".join(f"{k}={v!r}" for k, v in self.params().items())
+        return f"{type(self).__name__}({args})"
+
+    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
+                 rng: np.random.Generator) -> xr.DataArray:  # pragma: no cover - abstract
+        raise NotImplementedError(f"{type(self).__name__}.forecast is not implemented")
+
+    # -- helpers for subclasses -------------------------------------------------
+    def _fail(self, message: str) -> InsufficientDataError:
+        return InsufficientDataError(f"model {self.name!r}: {message}")
+
+    def _bad_param(self, param: str, expected: str, got: Any) -> ModelParameterError:
+        return ModelParameterError(f"model {self.name!r}: parameter {param!r} must be {expected}, "
+                                   f"got {got!r}")
+
+    def _check_choice(self, param: str, value: Any, options: tuple[str, ...]) -> None:
+        if value not in options:
+            raise self._bad_param(param, f"one of {sorted(options)}", value)
+
+    def _check_int(self, param: str, value: Any, minimum: int) -> int:
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < minimum:
+            raise self._bad_param(param, f"an integer >= {minimum}", value)
+        return int(value)
+
+    def _check_float(self, param: str, value: Any, *, positive: bool = True,
+                     allow_none: bool = False) -> float | None:
+        if value is None and allow_none:
+            return None
+        try:
+            v = float(value)
+        except (TypeError, ValueError):
+            raise self._bad_param(param, "a number" + (" or None" if allow_none else ""), value) from None
+        if not np.isfinite(v) or (positive and v <= 0):
+            raise self._bad_param(param, "a finite number > 0" if positive else "a finite number", value)
+        return v
+
+    def _layout(self, info: InfoSet, targets: Targets, n_draws: int,
+                rng: np.random.Generator) -> TargetLayout:
+        return TargetLayout.build(self.name, info, targets, n_draws, rng)
+
+    def _output(self, draws: np.ndarray, layout: TargetLayout) -> xr.DataArray:
+        return output_array(draws, layout, self)
+
+
+def per_variable(model: BaseModel, param: str, value: Any, variables: list[str]) -> np.ndarray:
+    """A scalar or ``{variable: value}`` hyperparameter as one float per variable (extras ignored)."""
+    if isinstance(value, dict):
+        missing = sorted(set(variables) - set(value))
+        if missing:
+            raise model._bad_param(param, f"a number or a mapping covering every variable "
+                                          f"(missing {missing})", value)
+        out = np.array([float(value[v]) for v in variables])
+    else:
+        try:
+            out = np.full(len(variables), float(value))
+        except (TypeError, ValueError):
+            raise model._bad_param(param, "a number or a mapping {variable: number}", value) from None
+    if not np.isfinite(out).all():
+        raise model._bad_param(param, "finite", value)
+    return out
+
+
+# ---------------------------------------------------------------------------- targets and output
+@dataclass(frozen=True)
+class TargetLayout:
+    """Where each target sits in the information set, validated once per forecast call.
+
+    Attributes
+    ----------
+    values : ndarray (T, n)
+        The panel, rows oldest first, NaN where unobserved.
+    ordinals : ndarray (T,)
+        Period ordinals of the panel rows (consecutive).
+    columns : ndarray (n_target_vars,)
+        Column of each target variable in ``values``.
+    target_ordinals : ndarray (n_horizons,)
+        Period ordinal of each horizon's target.
+    observed : ndarray (n_target_vars, n_horizons) bool
+        True where the target period already has a value in the panel.
+    observed_values : ndarray (n_target_vars, n_horizons)
+        Those values (NaN elsewhere).
+    """
+
+    variables: list[str]
+    values: np.ndarray
+    ordinals: np.ndarray
+    targets: Targets
+    columns: np.ndarray
+    target_ordinals: np.ndarray
+    observed: np.ndarray
+    observed_values: np.ndarray
+    n_draws: int
+    model: str
+
+    @classmethod
+    def build(cls, model: str, info: InfoSet, targets: Targets, n_draws: int,
+              rng: np.random.Generator) -> TargetLayout:
+        """Validate the call and locate every target; errors say what was expected and got."""
+        if not isinstance(rng, np.random.Generator):
+            raise TypeError(f"model {model!r}: rng must be a numpy.random.Generator, "
+                            f"got {type(rng).__name__}")
+        if isinstance(n_draws, bool) or not isinstance(n_draws, (int, np.integer)) or n_draws < 1:
+            raise ValueError(f"model {model!r}: n_draws must be an integer >= 1, got {n_draws!r}")
+        if targets.freq != info.freq:
+            raise ValueError(f"model {model!r}: targets are in frequency {targets.freq!r} but the "
+                             f"information set is in {info.freq!r}")
+        variables = info.variables
+        missing = sorted(set(targets.variables) - set(variables))
+        if missing:
+            raise ValueError(f"model {model!r}: target variable(s) {missing} are not in the "
+                             f"information set; available: {sorted(variables)}")
+        if len(targets.horizons) == 0 or len(targets.variables) == 0:
+            raise ValueError(f"model {model!r}: targets need at least one variable and one horizon, "
+                             f"got variables={targets.variables!r}, horizons={targets.horizons!r}")
+        values = info.values()
+        ordinals = np.asarray(info.periods.asi8, dtype=np.int64)
+        if len(ordinals) == 0:
+            raise InsufficientDataError(f"model {model!r}: the information set's panel is empty")
+        if len(ordinals) > 1 and not np.all(np.diff(ordinals) == 1):
+            raise ValueError(f"model {model!r}: the panel's periods must be consecutive, got "
+                             f"{list(info.periods.astype(str))[:5]}...")
+        columns = np.array([variables.index(v) for v in targets.variables], dtype=np.int64)
+        tord = np.array([(targets.current + int(h)).ordinal for h in targets.horizons], dtype=np.int64)
+        rows = tord - ordinals[0]
+        inside = (rows >= 0) & (rows < len(ordinals))
+        obs_vals = np.full((len(columns), len(tord)), np.nan)
+        obs_vals[:, inside] = values[np.ix_(rows[inside], columns)].T
+        observed = np.isfinite(obs_vals)
+        return cls(variables, values, ordinals, targets, columns, tord, observed, obs_vals,
+                   int(n_draws), model)
+
+    def steps(self, anchor: np.ndarray | int) -> np.ndarray:
+        """Steps after ``anchor`` (period ordinal, scalar or per target variable) of each unobserved target.
+
+        Observed targets get 0. An unobserved target at or before its anchor (a gap inside the
+        sample, or a period before the panel starts) cannot be forecast and raises ``ValueError``.
+        """
+        anchor = np.broadcast_to(np.asarray(anchor, dtype=np.int64), (len(self.columns),))
+        s = self.target_ordinals[None, :] - anchor[:, None]
+        bad = (~self.observed) & (s <= 0)
+        if bad.any():
+            j, k = np.argwhere(bad)[0]
+            period = self.targets.current + int(self.targets.horizons[k])
+            raise ValueError(f"model {self.model!r}: target {self.targets.variables[j]!r} at "
+                             f"{period} (horizon {self.targets.horizons[k]}) lies inside or before "
+                             f"the estimation sample but has no value in the information set")
+        return np.where(self.observed, 0, s)
+
+
+def output_array(draws: np.ndarray, layout: TargetLayout, model: Any) -> xr.DataArray:
+    """Fill observed targets (degenerate) and wrap ``(draw, variable, horizon)`` draws as xarray."""
+    out = np.array(draws, dtype=np.float64, copy=True)
+    j, k = np.nonzero(layout.observed)
+    out[:, j, k] = layout.observed_values[j, k]
+    if not np.isfinite(out).all():
+        # a model must raise rather than return NaN; reaching here is a bug worth a clear message
+        bad = np.argwhere(~np.isfinite(out))[0]
+        raise FloatingPointError(f"model {layout.model!r} produced a non-finite draw for "
+                                 f"{layout.targets.variables[bad[1]]!r} at horizon "
+                                 f"{layout.targets.horizons[bad[2]]}")
+    return xr.DataArray(
+        out, dims=DIMS,
+        coords={"draw": np.arange(out.shape[0]), "variable": list(layout.targets.variables),
+                "horizon": [int(h) for h in layout.targets.horizons]},
+        attrs={"model": str(getattr(model, "name", type(model).__name__)),
+               "model_version": str(getattr(model, "version", ""))},
+    )
+
+
+# ---------------------------------------------------------------------------- sample helpers
+def trailing_run(x: np.ndarray) -> tuple[int, int]:
+    """``(start, stop)`` of the contiguous finite stretch ending at the last finite entry of ``x``.
+
+    ``x`` is 1-D, or 2-D with rows as time (then a row counts only if all its entries are finite).
+    Returns ``(0, 0)`` when nothing is finite.
+    """
+    ok = np.isfinite(x) if x.ndim == 1 else np.isfinite(x).all(axis=1)
+    if not ok.any():
+        return 0, 0
+    stop = int(np.flatnonzero(ok)[-1]) + 1
+    gaps = np.flatnonzero(~ok[:stop])
+    start = int(gaps[-1]) + 1 if len(gaps) else 0
+    return start, stop
+
+
+def lag_design(y: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
+    """Regressand and regressors of a VAR(p) with intercept.
+
+    Parameters
+    ----------
+    y : ndarray (T, n)
+    p : int
+
+    Returns
+    -------
+    Y : ndarray (T - p, n)
+    X : ndarray (T - p, n * p + 1)
+        Columns ``[y_{t-1} (n), ..., y_{t-p} (n), 1]``.
+    """
+    t, n = y.shape
+    cols = [y[p - lag:t - lag] for lag in range(1, p + 1)]
+    x = np.concatenate(cols + [np.ones((t - p, 1))], axis=1) if p else np.ones((t, 1))
+    return y[p:], x
+
+
+def ar1_scales(y: np.ndarray) -> np.ndarray:
+    """Residual standard deviation of an AR(1) with intercept fitted by OLS to each column.
+
+    The usual scale of Minnesota-type priors (Litterman 1986; Bańbura, Giannone & Reichlin 2010).
+    """
+    yt, x = y[1:], y[:-1]
+    xm, ym = x - x.mean(axis=0), yt - yt.mean(axis=0)
+    sxx = (xm * xm).sum(axis=0)
+    beta = np.divide((xm * ym).sum(axis=0), sxx, out=np.zeros(y.shape[1]), where=sxx > 0)
+    resid = ym - xm * beta
+    dof = max(len(yt) - 2, 1)
+    s = np.sqrt((resid * resid).sum(axis=0) / dof)
+    # a constant series would give a zero scale and a singular prior: fall back to its level
+    fallback = np.maximum(np.abs(y).mean(axis=0), 1.0) * 1e-3
+    return np.where(s > 1e-12, s, fallback)

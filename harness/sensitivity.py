@@ -1,0 +1,248 @@
+"""Revision sensitivity: does the verdict depend on the truth chosen or on using revised data?
+
+Three checks, each a tidy table:
+
+* **truth sensitivity** — the same ledger scored under several truths (default ``first``,
+  ``release:2``, ``lag:365D``, ``latest``): ratios to the benchmark under each, the ranking of the
+  models under each, Spearman's rank correlation with the first truth's ranking and the pairs of
+  models that swap places;
+* **data sensitivity** — the same spec rerun in pseudo-real-time mode (each origin sees the latest
+  vintage cut at the ragged edge it had in real time): real-time minus pseudo-real-time score per
+  model, variable and horizon, with a Diebold–Mariano-type test of the paired difference. The
+  pseudo run is an ordinary run of the runner with ``mode = "pseudo"``: its tasks share the cache
+  of the real-time run and differ only by their information sets;
+* **revision exposure** — per target and horizon, the size of the revisions between truth choices
+  next to the forecast errors (noise-to-signal: std of revisions over the benchmark's RMSE).
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+DEFAULT_TRUTHS = ("first", "release:2", "lag:365D", "latest")
+
+
+def ranking_swaps(scores: pd.DataFrame, *, by: str = "truth", model: str = "model", value: str = "value",
+                  reference=None) -> pd.DataFrame:
+    """Compare model rankings across the levels of ``by`` (lower value = better).
+
+    Parameters
+    ----------
+    scores : DataFrame
+        Columns ``by``, ``model``, ``value`` (one row per pair).
+    reference : optional
+        The level of ``by`` the others are compared with (default: the first in order of appearance).
+
+    Returns
+    -------
+    DataFrame
+        One row per other level: Spearman rank correlation with the reference ranking, the
+        ranking itself, and the swapped pairs ``"a>b"`` (a ahead of b under the reference, behind here).
+
+    References
+    ----------
+    Spearman, C. (1904). The proof and measurement of association between two things.
+    American Journal of Psychology 15, 72–101.
+    """
+    from scipy.stats import spearmanr
+
+    levels = list(pd.unique(scores[by]))
+    reference = levels[0] if reference is None else reference
+    wide = scores.pivot_table(index=model, columns=by, values=value, aggfunc="mean")
+    wide = wide.dropna()
+    ref = wide[reference]
+    rows = []
+    for lv in levels:
+        if lv == reference or lv not in wide:
+            continue
+        cur = wide[lv]
+        swaps = []
+        for a, b in itertools.combinations(wide.index, 2):
+            if np.sign(ref[a] - ref[b]) * np.sign(cur[a] - cur[b]) < 0:
+                first, second = (a, b) if ref[a] < ref[b] else (b, a)
+                swaps.append(f"{first}>{second}")
+        rho = spearmanr(ref.to_numpy(), cur.to_numpy()).statistic if len(wide) > 2 else (
+            1.0 if not swaps else -1.0)
+        rows.append({by: lv, "reference": reference, "spearman": float(rho),
+                     "ranking": " < ".join(cur.sort_values().index.astype(str)),
+                     "reference_ranking": " < ".join(ref.sort_values().index.astype(str)),
+                     "swaps": ";".join(swaps), "n_swaps": len(swaps)})
+    return pd.DataFrame(rows)
+
+
+@dataclass
+class Sensitivity:
+    """The three sensitivity tables and a plain-words summary per model."""
+
+    truth_table: pd.DataFrame
+    rankings: pd.DataFrame
+    data_table: pd.DataFrame
+    exposure: pd.DataFrame
+    verdicts: pd.DataFrame
+    truths: tuple[str, ...]
+    pseudo_run: Path | None
+
+    def summary(self) -> str:
+        lines = ["Revision sensitivity (score: CRPS, full sample; ratio < 1 = better than the benchmark)", ""]
+        for _, r in self.verdicts.iterrows():
+            lines.append(f"- {r['model']}: {r['verdict']}")
+        if len(self.rankings):
+            sw = self.rankings[self.rankings["n_swaps"] > 0]
+            lines.append("")
+            lines.append(f"Model rankings changed in {len(sw)} of {len(self.rankings)} comparisons "
+                         f"(variable × horizon × truth against '{self.truths[0]}').")
+        if len(self.exposure):
+            e = self.exposure
+            big = e[e["noise_to_signal"] > 0.5]
+            lines.append(f"Revisions are large relative to forecast errors (noise-to-signal > 0.5) for "
+                         f"{len(big)} of {len(e)} target × horizon cells.")
+        return "\n".join(lines)
+
+    def save(self, path: str | Path) -> Path:
+        path = Path(path)
+        path.mkdir(parents=True, exist_ok=True)
+        self.truth_table.to_csv(path / "sensitivity_truths.csv", index=False)
+        self.rankings.to_csv(path / "sensitivity_rankings.csv", index=False)
+        self.data_table.to_csv(path / "sensitivity_data.csv", index=False)
+        self.exposure.to_csv(path / "revision_exposure.csv", index=False)
+        self.verdicts.to_csv(path / "sensitivity_verdicts.csv", index=False)
+        (path / "sensitivity.txt").write_text(self.summary() + "\n")
+        return path
+
+
+def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subperiod: str = "full"):
+    """Score one ledger under several truths; return (ratio table, rankings, evaluations by truth)."""
+    from harness.evaluate import evaluate
+    from harness.ledger import Ledger, read_ledger
+
+    ledger = run if isinstance(run, Ledger) else read_ledger(run)
+    evs = {t: evaluate(ledger, t) for t in truths}
+    rows = []
+    for t, ev in evs.items():
+        tab = ev.table[ev.table["subperiod"] == subperiod]
+        rel = ev.relative[ev.relative["subperiod"] == subperiod]
+        m = tab[["model", "variable", "horizon", "n", score]].merge(
+            rel[["model", "variable", "horizon", score]].rename(columns={score: "ratio"}),
+            on=["model", "variable", "horizon"], how="left")
+        m.insert(0, "truth", t)
+        rows.append(m.rename(columns={score: "score"}))
+    table = pd.concat(rows, ignore_index=True)
+    ranks = []
+    for (var, h), g in table.groupby(["variable", "horizon"], sort=True):
+        r = ranking_swaps(g.rename(columns={"score": "value"}), by="truth", reference=truths[0])
+        if len(r):
+            r.insert(0, "horizon", h)
+            r.insert(0, "variable", var)
+            ranks.append(r)
+    rankings = pd.concat(ranks, ignore_index=True) if ranks else pd.DataFrame()
+    return table, rankings, evs
+
+
+def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", progress=False, log=None,
+                     score: str = "crps"):
+    """Rerun the spec in pseudo-real-time mode and compare scores with the real-time run."""
+    from harness import compare
+    from harness.evaluate import evaluate
+    from harness.runner import run
+
+    pseudo_spec = replace(spec, mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
+                          cache=spec.cache_dir)
+    res = run(pseudo_spec, jobs=jobs, backend=backend, progress=progress, log=log)
+    pseudo = evaluate(res.run_dir, truth)
+    key = ["model", "origin", "variable", "horizon"]
+    a = real_eval.forecasts[key + [score]]
+    b = pseudo.forecasts[key + [score]]
+    m = a.merge(b, on=key, suffixes=("_rt", "_pseudo"))
+    m = m[np.isfinite(m[f"{score}_rt"]) & np.isfinite(m[f"{score}_pseudo"])]
+    rows = []
+    for (model, var, h), g in m.groupby(["model", "variable", "horizon"], sort=True):
+        g = g.sort_values("origin")
+        rt, ps = g[f"{score}_rt"].to_numpy(), g[f"{score}_pseudo"].to_numpy()
+        row = dict(model=model, variable=var, horizon=h, n=len(g), real_time=rt.mean(), pseudo=ps.mean(),
+                   difference=rt.mean() - ps.mean(), stat=np.nan, pvalue=np.nan)
+        if len(g) >= 4 and np.any(rt != ps):
+            r = compare.diebold_mariano(rt, ps, h=max(int(h) + 1, 1))
+            row.update(stat=r.stat, pvalue=r.pvalue)
+        rows.append(row)
+    return pd.DataFrame(rows), pseudo, res
+
+
+def revision_exposure(evs: dict, benchmark: str, truths) -> pd.DataFrame:
+    """Per target and horizon: revisions between the first and other truths vs forecast errors."""
+    base = truths[0]
+    f0 = evs[base].forecasts
+    rows = []
+    for t in truths[1:]:
+        f1 = evs[t].forecasts
+        key = ["model", "origin", "variable", "horizon"]
+        m = f0[key + ["truth", "se_mean"]].merge(f1[key + ["truth"]], on=key, suffixes=("", "_other"))
+        m = m[m["model"] == benchmark]
+        for (var, h), g in m.groupby(["variable", "horizon"], sort=True):
+            rev = (g["truth_other"] - g["truth"]).dropna()
+            rmse = float(np.sqrt(np.nanmean(g["se_mean"]))) if g["se_mean"].notna().any() else np.nan
+            sd = float(rev.std(ddof=1)) if len(rev) > 1 else np.nan
+            rows.append(dict(variable=var, horizon=h, from_truth=base, to_truth=t, n=len(rev),
+                             mean_revision=float(rev.mean()) if len(rev) else np.nan,
+                             mean_abs_revision=float(rev.abs().mean()) if len(rev) else np.nan,
+                             sd_revision=sd, benchmark_rmse=rmse,
+                             noise_to_signal=sd / rmse if rmse and np.isfinite(rmse) else np.nan))
+    return pd.DataFrame(rows)
+
+
+def _verdicts(truth_table, rankings, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
+    rows = []
+    for model, g in truth_table.groupby("model", sort=False):
+        if model == benchmark:
+            continue
+        wins = g.assign(win=g["ratio"] < 1).pivot_table(index=["variable", "horizon"], columns="truth",
+                                                         values="win", aggfunc="first")
+        stable = wins.nunique(axis=1).eq(1)
+        share_truth = float(stable.mean()) if len(stable) else np.nan
+        flips = [f"{v} h={h}" for (v, h), s in stable.items() if not s]
+        d = data_table[data_table["model"] == model] if len(data_table) else pd.DataFrame()
+        sig = d[(d["pvalue"] < alpha)] if len(d) else d
+        parts = []
+        if share_truth == 1.0:
+            parts.append("win/lose verdict against the benchmark identical under every truth")
+        else:
+            parts.append(f"verdict against the benchmark changes with the truth in {len(flips)} of "
+                         f"{len(stable)} cells ({', '.join(flips[:4])}{'…' if len(flips) > 4 else ''})")
+        if len(d):
+            if len(sig) == 0:
+                parts.append("real-time and pseudo-real-time scores not significantly different "
+                             f"(DM at {int(alpha * 100)}%)")
+            else:
+                direction = "worse" if sig["difference"].mean() > 0 else "better"
+                parts.append(f"real-time scores significantly {direction} than with revised data in {len(sig)} of "
+                             f"{len(d)} cells")
+        robust = share_truth == 1.0 and (len(d) == 0 or len(sig) == 0)
+        rows.append(dict(model=model, robust=robust,
+                         verdict=("ROBUST: " if robust else "NOT ROBUST: ") + "; ".join(parts)))
+    return pd.DataFrame(rows)
+
+
+def sensitivity(spec, *, truths=None, run_dir=None, jobs=None, backend="loky", progress=False, log=None,
+                data: bool = True) -> Sensitivity:
+    """Run all three checks for a spec whose real-time run exists (or is run now)."""
+    from harness.runner import run
+
+    truths = tuple(truths or spec.scoring.get("truths") or DEFAULT_TRUTHS)
+    if run_dir is None:
+        res = run(spec, jobs=jobs, backend=backend, progress=progress, log=log)
+        run_dir = res.run_dir
+    table, rankings, evs = truth_sensitivity(run_dir, truths)
+    benchmark = evs[truths[0]].benchmark
+    if data and spec.mode == "real-time":
+        dtable, _, pres = data_sensitivity(spec, evs[truths[0]], truth=truths[0], jobs=jobs, backend=backend,
+                                           progress=progress, log=log)
+        pseudo_dir = pres.run_dir
+    else:
+        dtable, pseudo_dir = pd.DataFrame(), None
+    exposure = revision_exposure(evs, benchmark, truths)
+    verdicts = _verdicts(table, rankings, dtable, benchmark)
+    return Sensitivity(table, rankings, dtable, exposure, verdicts, truths, pseudo_dir)
