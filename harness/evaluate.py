@@ -105,7 +105,7 @@ def regimes_for(manifest: dict, cube, periods: pd.PeriodIndex) -> tuple[pd.Serie
 
 
 def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, dm_scores=HEADLINE,
-             fluctuation_window: float = 0.3) -> Evaluation:
+             fluctuation_window: float = 0.3, tests: bool = True) -> Evaluation:
     """Score a run against one truth rule.
 
     Parameters
@@ -117,13 +117,15 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
         spec's ``[scoring] truth``.
     store : VintageStore, optional
         Default: the store the run names.
+    tests : bool
+        Run the comparison and calibration tests (False: scores and tables only).
 
     Returns
     -------
     Evaluation
     """
     from harness import compare
-    from harness.scoring import aggregate, assign_subperiods, relative_to, score_all
+    from harness.scoring import aggregate, assign_subperiods, common_sample, relative_to, score_all
     from vintages.infoset import parse_truth
     from vintages.store import VintageStore
 
@@ -151,56 +153,86 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
         kw["quantile_levels"] = tuple(scoring["quantile_levels"])
     if "coverage_levels" in scoring:
         kw["coverage_levels"] = tuple(scoring["coverage_levels"])
-    scores = score_all(fc["truth"].to_numpy(dtype=np.float64), draws, **kw)
+    # draws are stored as float32: compare them with the truth at the same resolution, so that a
+    # forecast equal to an already published value scores exactly zero error
+    obs = fc["truth"].to_numpy(dtype=np.float64).astype(np.float32).astype(np.float64)
+    scores = score_all(obs, draws, **kw)
     for k, v in scores.items():
         fc[k] = v
     all_periods = pd.PeriodIndex(sorted({pd.Period(p, freq=freq) for p in fc["target_period"]}), freq=freq)
     reg, chron_src, tps = regimes_for(man, cube, all_periods)
     sub = {k: tuple(v) for k, v in scoring.get("subperiods", {}).items()}
-    fc = assign_subperiods(fc, sub, reg)
+    fc["_row"] = np.arange(len(fc))
+    long = assign_subperiods(fc, sub, reg)
+    fc["subperiods"] = long.groupby("_row", sort=True)["subperiod"].agg(lambda s: [str(x) for x in s]) \
+        .reindex(fc["_row"]).to_list()
+    fc = fc.drop(columns="_row")
+    long = long.drop(columns="_row")
     score_cols = [c for c in scores if c != "pit"]
-    table = aggregate(fc, score_cols)
-    relative = relative_to(table, benchmark, [c for c in score_cols if c in LOSSES])
-    tests = _dm_tests(fc, benchmark, dm_scores, compare)
-    mcs = _mcs(fc, compare)
-    calib = _calibration(fc, scores, compare)
-    fluct = _fluctuation(fc, benchmark, compare, fluctuation_window)
+    # compare like with like: a target scored for one model only is left out of every cell
+    common = common_sample(long, keys=("variable", "horizon", "origin", "target_period", "subperiod"),
+                           score_columns=score_cols)
+    table = aggregate(common, ("model", "variable", "horizon"), score_columns=score_cols)
+    relative = relative_to(table, benchmark)
+    if tests:
+        dm = _dm_tests(fc, benchmark, dm_scores, compare)
+        mcs = _mcs(fc, compare)
+        calib = _calibration(fc, scores, compare)
+        fluct = _fluctuation(fc, benchmark, compare, fluctuation_window)
+    else:
+        dm = mcs = calib = fluct = pd.DataFrame()
     names = ["full"] + list(sub) + ["recession", "expansion"]
-    return Evaluation(Path(ledger.run_dir), truth, benchmark, fc, table, relative, tests, mcs, calib, fluct, reg,
+    return Evaluation(Path(ledger.run_dir), truth, benchmark, fc, table, relative, dm, mcs, calib, fluct, reg,
                       chron_src, tps, names, man)
 
 
-def _paired(fc: pd.DataFrame, model: str, benchmark: str, score: str, mask=None):
-    a = fc[fc["model"] == model]
-    b = fc[fc["model"] == benchmark]
-    m = a.merge(b, on=["origin", "variable", "horizon"], suffixes=("", "_b"))
-    m = m[np.isfinite(m[score]) & np.isfinite(m[score + "_b"])]
-    return m.sort_values("origin")
+def _steps(h) -> int:
+    """Steps ahead for the tests' HAC lags: h + 1 periods separate origin and target at horizon h ≥ 0
+    (the origin's own period is not yet observed); backcasts count as one step."""
+    return max(int(h) + 1, 1)
 
 
-def _in_sub(df: pd.DataFrame, name: str) -> pd.Series:
-    return df["subperiods"].map(lambda s: name in s)
+def _panels(g: pd.DataFrame, scores, benchmark: str):
+    """Per (variable, horizon) group: origins, target periods, sub-period sets and loss arrays (origin × model)."""
+    g = g.sort_values("origin")
+    origins = np.sort(pd.unique(g["origin"]))
+    oi = np.searchsorted(origins, g["origin"].to_numpy())
+    models = list(pd.unique(g["model"]))
+    mi = pd.Index(models).get_indexer(g["model"])
+    arrays = {}
+    for sc in scores:
+        if sc in g:
+            arr = np.full((len(origins), len(models)), np.nan)
+            arr[oi, mi] = g[sc].to_numpy(dtype=np.float64)
+            arrays[sc] = arr
+    first = g.drop_duplicates("origin")
+    tps = first.set_index("origin").reindex(origins)
+    return origins, tps["target_period"].to_numpy(), tps["subperiods"].to_list(), models, arrays
 
 
 def _dm_tests(fc, benchmark, dm_scores, compare) -> pd.DataFrame:
     rows = []
-    models = [m for m in pd.unique(fc["model"]) if m != benchmark]
-    subs = sorted({s for ss in fc["subperiods"] for s in ss})
+    subs = [s for s in dict.fromkeys(x for ss in fc["subperiods"] for x in ss)]
     for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-        for model in models:
-            for score in dm_scores:
-                if score not in g:
+        origins, _, sublists, models, arrays = _panels(g, dm_scores, benchmark)
+        if benchmark not in models:
+            continue
+        masks = {sname: np.array([sname in (sl if isinstance(sl, list) else []) for sl in sublists]) for sname in subs}
+        jb = models.index(benchmark)
+        for score, arr in arrays.items():
+            for j, model in enumerate(models):
+                if model == benchmark:
                     continue
-                pair = _paired(g, model, benchmark, score)
-                for sname in subs:
-                    p = pair[_in_sub(pair, sname)]
-                    if len(p) < 4:
-                        rows.append(dict(model=model, variable=var, horizon=h, subperiod=sname, score=score,
-                                         n=len(p), stat=np.nan, pvalue=np.nan, mean_diff=np.nan))
-                        continue
-                    r = compare.diebold_mariano(p[score].to_numpy(), p[score + "_b"].to_numpy(), h=max(int(h) + 1, 1))
-                    rows.append(dict(model=model, variable=var, horizon=h, subperiod=sname, score=score, n=r.n,
-                                     stat=r.stat, pvalue=r.pvalue, mean_diff=r.mean_diff))
+                pair_ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
+                for sname, mask in masks.items():
+                    sel = pair_ok & mask
+                    n = int(sel.sum())
+                    row = dict(model=model, variable=var, horizon=h, subperiod=sname, score=score, n=n,
+                               stat=np.nan, pvalue=np.nan, mean_diff=np.nan)
+                    if n >= 4:
+                        r = compare.diebold_mariano(arr[sel, j], arr[sel, jb], h=_steps(h))
+                        row.update(n=r.n, stat=r.stat, pvalue=r.pvalue, mean_diff=r.mean_diff)
+                    rows.append(row)
     return pd.DataFrame(rows)
 
 
@@ -210,13 +242,12 @@ def _mcs(fc, compare, score="crps", alpha=0.10) -> pd.DataFrame:
         wide = g.pivot_table(index="origin", columns="model", values=score).dropna()
         if wide.shape[0] < 10 or wide.shape[1] < 2:
             continue
-        res = compare.model_confidence_set(wide.to_numpy(), alpha=alpha, block_len=max(int(h) + 1, 2),
-                                           n_boot=1000, seed=20261201)
-        included = set(np.asarray(res.included).tolist())
+        res = compare.model_confidence_set(wide, alpha=alpha, block_len=max(_steps(h), 2), n_boot=1000,
+                                           seed=20261201)
         pvals = np.asarray(res.pvalues)
         for j, m in enumerate(wide.columns):
-            rows.append(dict(variable=var, horizon=h, model=m, in_mcs=j in included, pvalue=float(pvals[j]),
-                             n=wide.shape[0], alpha=alpha))
+            rows.append(dict(variable=var, horizon=h, model=m, in_mcs=m in res.included, pvalue=float(pvals[j]),
+                             n=res.n, alpha=alpha))
     return pd.DataFrame(rows)
 
 
@@ -236,11 +267,15 @@ def _calibration(fc, scores, compare) -> pd.DataFrame:
             if len(hits) >= 8:
                 k = compare.kupiec(hits, lvl)
                 ch = compare.christoffersen(hits, lvl)
-                row[f"{c}_kupiec_p"] = k.pvalue
-                row[f"{c}_christoffersen_p"] = ch.pvalue
+                row[f"{c}_kupiec_p"] = k.p_uc
+                row[f"{c}_christoffersen_p"] = ch.p_cc
         if len(pit) >= 8:
             row["berkowitz_p"] = compare.berkowitz(pit).pvalue
-            row["rs_p"] = compare.rossi_sekhposyan(pit, h=max(int(h) + 1, 1)).pvalue
+            rs = compare.rossi_sekhposyan(pit, h=_steps(h), n_boot=499, seed=20261201)
+            row["rs_p"] = rs.ks_pvalue
+            row["rs_cvm_p"] = rs.cvm_pvalue
+        hist = compare.pit_histogram(pit, bins=10) if len(pit) else np.zeros(10)
+        row["pit_hist"] = ";".join(str(int(x)) for x in np.asarray(getattr(hist, "counts", hist)).ravel()[:10])
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -248,15 +283,19 @@ def _calibration(fc, scores, compare) -> pd.DataFrame:
 def _fluctuation(fc, benchmark, compare, mu) -> pd.DataFrame:
     rows = []
     for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-        for model in [m for m in pd.unique(g["model"]) if m != benchmark]:
-            p = _paired(g, model, benchmark, "crps")
-            if len(p) < 20:
+        origins, tps, _, models, arrays = _panels(g, ["crps"], benchmark)
+        if benchmark not in models or "crps" not in arrays:
+            continue
+        arr, jb = arrays["crps"], models.index(benchmark)
+        for j, model in enumerate(models):
+            if model == benchmark:
                 continue
-            r = compare.fluctuation_test(p["crps"].to_numpy(), p["crps_b"].to_numpy(), mu=mu,
-                                         h=max(int(h) + 1, 1))
-            w = len(r.path)
-            ends = p["target_period"].to_numpy()[len(p) - w:] if w else []
-            for t, val in zip(ends, r.path, strict=False):
+            ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
+            if ok.sum() < 20:
+                continue
+            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.10, h=_steps(h))
+            ends = tps[ok][np.asarray(r.window_end, dtype=int)]
+            for t, val in zip(ends, r.path, strict=True):
                 rows.append(dict(model=model, variable=var, horizon=h, target_period=t, stat=float(val),
                                  critical=float(r.critical_value), reject=bool(r.reject)))
     return pd.DataFrame(rows)

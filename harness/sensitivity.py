@@ -121,7 +121,7 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
     from harness.ledger import Ledger, read_ledger
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
-    evs = {t: evaluate(ledger, t) for t in truths}
+    evs = {t: evaluate(ledger, t, tests=False) for t in truths}
     rows = []
     for t, ev in evs.items():
         tab = ev.table[ev.table["subperiod"] == subperiod]
@@ -153,7 +153,7 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
     pseudo_spec = replace(spec, mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
                           cache=spec.cache_dir)
     res = run(pseudo_spec, jobs=jobs, backend=backend, progress=progress, log=log)
-    pseudo = evaluate(res.run_dir, truth)
+    pseudo = evaluate(res.run_dir, truth, tests=False)
     key = ["model", "origin", "variable", "horizon"]
     a = real_eval.forecasts[key + [score]]
     b = pseudo.forecasts[key + [score]]

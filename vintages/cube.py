@@ -63,6 +63,9 @@ class FreqCube:
     def asof_values(self, dates) -> tuple[np.ndarray, np.ndarray]:
         """Known values and their release dates at each date: arrays (n_dates, n_var, n_period)."""
         j = np.atleast_1d(self.release_index(dates))
+        if not len(self.releases):  # nothing published yet: every cell unknown on every date
+            shape = (len(j), len(self.variables), len(self.periods))
+            return np.full(shape, np.nan), np.full(shape, np.datetime64("NaT"), "datetime64[D]")
         jj = np.maximum(j, 0)
         vals = self.known[jj]
         src = self.src[jj]
@@ -216,6 +219,9 @@ class Cube:
         if k < 1:
             raise ValueError(f"estimate number must be ≥ 1, got {k}")
         fc = self.parts[freq]
+        if not len(fc.releases):
+            vals, rel = fc.asof_values([np.datetime64("NaT")])
+            return fc.to_array(vals[0], rel[0], f"estimate_{k}")
         obs = ~np.isnan(fc.raw)
         hit = obs & (np.cumsum(obs, axis=0) == k)
         has = hit.any(axis=0)
@@ -232,6 +238,9 @@ class Cube:
     def latest(self, freq: str) -> xr.DataArray:
         """The latest published estimate of every cell."""
         fc = self.parts[freq]
+        if not len(fc.releases):
+            vals, rel = fc.asof_values([np.datetime64("NaT")])
+            return fc.to_array(vals[0], rel[0], "latest")
         src = fc.src[-1]
         rel = np.where(src >= 0, fc.releases[np.maximum(src, 0)], np.datetime64("NaT"))
         return fc.to_array(fc.known[-1].copy(), rel, "latest")
@@ -240,6 +249,9 @@ class Cube:
         """For each period, the estimate in force ``lag_days`` after the period ended."""
         fc = self.parts[freq]
         when = period_end(fc.periods, freq) + np.timedelta64(int(lag_days), "D")
+        if not len(fc.releases):
+            vals, rel = fc.asof_values([np.datetime64("NaT")])
+            return fc.to_array(vals[0], rel[0], f"lag_{lag_days}D")
         j = fc.release_index(when)
         pi = np.arange(len(fc.periods))
         vals = fc.known[np.maximum(j, 0)[None, :].repeat(len(fc.variables), 0),

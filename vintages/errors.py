@@ -17,7 +17,9 @@ class InputError(VintageError, ValueError):
             where.append(f"line {line}")
         if field is not None:
             where.append(f"field '{field}'")
-        super().__init__(f"{', '.join(where)}: {message}" if where else message)
+        text = f"{', '.join(where)}: {message}" if where else message
+        # One line, always: a message is shown in a terminal, a log line or a CI annotation.
+        super().__init__(text.replace("\r\n", " ").replace("\n", " ").replace("\r", " "))
         self.file, self.line, self.field, self.reason = file, line, field, message
 
 

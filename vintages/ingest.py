@@ -4,17 +4,27 @@ Accepted layouts
 ----------------
 ``long``
     A table (CSV or Parquet) with columns ``variable, period, release, value``: one row per value
-    published for a (variable, reference period) on a release date.
+    published for a (variable, reference period) on a release date. Other columns are ignored.
 ``triangle``
     One variable's release triangle in CSV: the first column holds reference periods, every
     other column header is a release date, each cell the value published on that date; a blank
     cell means "not published in that release".
 
 Periods are written ``2001Q3`` (quarterly) or ``2001-07`` (monthly); release dates ``YYYY-MM-DD``.
+
+Where errors point
+------------------
+* CSV: ``line`` is the physical line of the file, the header being line 1 (a quoted field that
+  spans lines is counted correctly). Blank lines are skipped but still counted.
+* Parquet and in-memory tables: ``line`` is the 1-based row number (there are no text lines).
+* ``field`` is the column name; in a triangle, a value's or release date's field is the
+  release-date column header, and a period's field is the header of the first column.
 """
 
 from __future__ import annotations
 
+import csv
+import io
 import re
 from pathlib import Path
 
@@ -27,94 +37,220 @@ from vintages.periods import format_periods, parse_periods, period_end
 
 REQUIRED = ("variable", "period", "release", "value")
 SAFE_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,63}$")
+_DATE_HEADER = re.compile(r"^\d{4}-\d{2}-\d{2}$")
+# A day, optionally with a time of day (timestamps written by other tools); never a bare month.
+_DATE_CELL = re.compile(r"^\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)?$")
+_NAN_WORDS = ("nan", "+nan", "-nan")
+_PARQUET_SUFFIXES = (".parquet", ".pq")
 
 
-def read_releases(path: str | Path, *, layout: str = "long", variable: str | None = None,
+def read_releases(path: str | Path, layout: str = "long", variable: str | None = None,
                   freq: str | None = None) -> pd.DataFrame:
-    """Read one release file into a long table with a ``_line`` column (1-based file line).
+    """Read one release file into a long table with a ``_line`` column (where each value was read).
 
     Parameters
     ----------
     path : path-like
-        A CSV (``long`` or ``triangle``) or Parquet (``long``) file.
+        A CSV (``long`` or ``triangle``) or Parquet (``long``; suffix ``.parquet`` or ``.pq``) file.
     layout : {"long", "triangle"}
+        The file's layout (see the module docstring).
     variable : str, optional
-        The variable a triangle holds (required for ``triangle``).
-    freq : {"Q", "M"}, optional
-        Expected frequency; checked against the period labels.
+        The variable a triangle holds (required for ``triangle``, ignored for ``long``).
+    freq : {"M", "Q"}, optional
+        Expected frequency of every variable in the file; checked by :func:`validate_table`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``variable, period, release, value`` as read (not yet validated), ``_line``
+        (1-based: the CSV line, header = 1, or the Parquet row) and, for a triangle, ``_field``
+        (the release-date column header of each value). ``attrs`` holds ``source`` (the path),
+        ``expected_freq`` and, for a triangle, ``period_field``.
 
     Raises
     ------
     InputError
-        Unreadable or empty file, missing column, bad layout option.
+        Unreadable or empty file, bad layout or frequency option, missing or duplicate column,
+        a triangle column header that is not a release date, an unsafe triangle variable name.
     """
     path = Path(path)
+    src = str(path)
     if layout not in LAYOUTS:
-        raise InputError(f"unknown layout {layout!r}; expected one of {sorted(LAYOUTS)}", file=str(path))
+        raise InputError(f"unknown layout {layout!r}; expected one of {sorted(LAYOUTS)}", file=src)
     if freq is not None and freq not in FREQS:
-        raise InputError(f"unknown frequency {freq!r}; expected one of {sorted(FREQS)}", file=str(path))
-    if not path.is_file():
-        raise InputError("file not found or not a regular file", file=str(path))
-    try:
-        if path.suffix.lower() == ".parquet":
-            if layout != "long":
-                raise InputError("a Parquet file must use the long layout", file=str(path))
-            raw = pd.read_parquet(path)
-            raw = raw.astype({c: "object" for c in raw.columns if c != "value"})
-            first_line = 1  # rows of a Parquet file are numbered from 1
-        else:
-            raw = pd.read_csv(path, dtype=str, keep_default_na=False, skip_blank_lines=False)
-            first_line = 2  # line 1 is the header
-    except InputError:
-        raise
-    except pd.errors.EmptyDataError:
-        raise InputError("file is empty", file=str(path)) from None
-    except Exception as exc:  # any reader failure is an input problem of this file
-        raise InputError(f"cannot read file: {type(exc).__name__}: {exc}".splitlines()[0], file=str(path)) from None
-    raw.columns = [str(c).strip() for c in raw.columns]
-    raw["_line"] = np.arange(first_line, first_line + len(raw))
-    if layout == "long":
-        if "value" in raw and raw["value"].dtype == object:
-            raw = raw[~_blank_row(raw)]
-        missing = [c for c in REQUIRED if c not in raw.columns]
-        if missing:
-            raise InputError(f"missing column(s) {missing}; a long table needs {list(REQUIRED)}",
-                             file=str(path), line=1, field=missing[0])
-        if raw.empty:
-            raise InputError("file has a header but no data rows", file=str(path))
-        out = raw[list(REQUIRED) + ["_line"]].copy()
-    else:
+        raise InputError(f"unknown frequency {freq!r}; expected one of {sorted(FREQS)}", file=src)
+    if layout == "triangle":
         if variable is None:
-            raise InputError("a triangle holds one variable: name it (--variable NAME)", file=str(path))
-        if raw.shape[1] < 3:
-            raise InputError("a triangle needs a period column and at least one release-date column",
-                             file=str(path), line=1)
-        pcol = raw.columns[0]
-        dates = [c for c in raw.columns[1:] if c != "_line"]
-        for c in dates:
-            try:
-                pd.Timestamp(c)
-                if not re.match(r"^\d{4}-\d{2}-\d{2}$", c):
-                    raise ValueError
-            except ValueError:
-                raise InputError(f"column header {c!r} is not a release date YYYY-MM-DD",
-                                 file=str(path), line=1, field=c) from None
-        long = raw.melt(id_vars=[pcol, "_line"], value_vars=dates, var_name="release", value_name="value")
-        long = long[long["value"].astype(str).str.strip() != ""]
-        if long.empty:
-            raise InputError("the triangle holds no values", file=str(path))
-        long = long.rename(columns={pcol: "period"})
-        long["variable"] = variable
-        long["_field"] = long["release"]
-        out = long[list(REQUIRED) + ["_line", "_field"]].reset_index(drop=True)
-    out.attrs["source"] = str(path)
+            raise InputError("a triangle holds one variable: name it (--variable NAME)", file=src)
+        if not _safe(variable):
+            raise InputError(f"variable name {variable!r} is not a safe identifier ({_SAFE_RULE})",
+                             file=src, field="variable")
+    if not path.is_file():
+        raise InputError("file not found or not a regular file", file=src)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read file: {type(exc).__name__}: {exc.strerror or exc}", file=src) from None
+    if not data.strip():
+        raise InputError("file is empty", file=src)
+    if path.suffix.lower() in _PARQUET_SUFFIXES:
+        if layout != "long":
+            raise InputError("a Parquet file must use the long layout", file=src)
+        raw = _read_parquet(data, src)
+        raw["_line"] = np.arange(1, len(raw) + 1)  # no text lines in Parquet: rows from 1
+        header = list(raw.columns[:-1])
+    else:
+        raw, header = _read_csv(data, src)
+    _check_header(header, src)
+    if layout == "long":
+        out = _long(raw, src)
+    else:
+        out = _triangle(raw, header, variable, src)
+    out.attrs["source"] = src
     out.attrs["expected_freq"] = freq
     return out
 
 
-def _blank_row(df: pd.DataFrame) -> pd.Series:
-    cols = [c for c in df.columns if c != "_line"]
-    return df[cols].astype(str).apply(lambda s: s.str.strip() == "").all(axis=1)
+def _read_parquet(data: bytes, src: str) -> pd.DataFrame:
+    """Read Parquet bytes (native dtypes are kept; validation copes with text or typed columns)."""
+    import pyarrow.parquet as pq
+
+    try:
+        raw = pq.read_table(io.BytesIO(data)).to_pandas()
+    except Exception as exc:  # any reader failure is an input problem of this file
+        raise InputError(_one_line(f"cannot read Parquet file: {type(exc).__name__}: {exc}"), file=src) from None
+    raw.columns = [str(c).strip() for c in raw.columns]
+    return raw.reset_index(drop=True)
+
+
+def _read_csv(data: bytes, src: str) -> tuple[pd.DataFrame, list[str]]:
+    """Read CSV bytes as text cells; return the frame (with ``_line``) and the header cells."""
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[:exc.start].count(b"\n") + 1
+        raise InputError(f"cannot read file: not UTF-8 text (byte {data[exc.start]:#04x} at offset "
+                         f"{exc.start})", file=src, line=line) from None
+    try:
+        # header=None: the header is row 0, so a data row longer than the header is an error
+        # (with a header row pandas would silently take the extra field as an index).
+        raw = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, skip_blank_lines=False,
+                          header=None)
+    except pd.errors.EmptyDataError:
+        raise InputError("file is empty", file=src) from None
+    except pd.errors.ParserError as exc:
+        m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
+        if m is None:
+            raise InputError(_one_line(f"cannot read file: {type(exc).__name__}: {exc}"), file=src) from None
+        record = int(m.group(2))  # pandas counts records; a quoted line break makes lines differ
+        starts = _record_starts(text)
+        line = starts[record - 1] if starts is not None and record <= len(starts) else record
+        raise InputError(f"row has {m.group(3)} fields but the header has {m.group(1)}",
+                         file=src, line=line) from None
+    except Exception as exc:  # any other reader failure is an input problem of this file
+        raise InputError(_one_line(f"cannot read file: {type(exc).__name__}: {exc}"), file=src) from None
+    header = [str(c).strip() for c in raw.iloc[0].fillna("")]
+    raw = raw.iloc[1:].reset_index(drop=True).fillna("")
+    raw.columns = header
+    n = len(raw)
+    starts = _record_starts(text)
+    raw["_line"] = (np.asarray(starts[1:], dtype=np.int64) if starts is not None and len(starts) == n + 1
+                    else np.arange(2, n + 2))
+    return raw, header
+
+
+def _record_starts(text: str) -> list[int] | None:
+    """First physical line of every record (header included), or None when lines are records."""
+    if '"' not in text:
+        return None  # no quoting: one record per line
+    # A quoted field may hold line breaks: count physical lines the way the csv module reads them.
+    reader = csv.reader(io.StringIO(text))
+    starts, prev = [], 0
+    for _ in reader:
+        starts.append(prev + 1)
+        prev = reader.line_num
+    return starts
+
+
+def _check_header(header: list[str], src: str) -> None:
+    seen: set[str] = set()
+    for c in header:
+        if c in seen:
+            raise InputError(f"duplicate column {c!r} in the header", file=src, line=1, field=c)
+        seen.add(c)
+
+
+def _long(raw: pd.DataFrame, src: str) -> pd.DataFrame:
+    missing = [c for c in REQUIRED if c not in raw.columns]
+    if missing:
+        got = sorted(c for c in raw.columns if c != "_line")
+        raise InputError(f"missing column(s) {missing}; a long table needs {list(REQUIRED)}, got {got}",
+                         file=src, line=1, field=missing[0])
+    out = raw[list(REQUIRED) + ["_line"]]
+    blank = np.ones(len(out), dtype=bool)
+    for c in REQUIRED:
+        blank &= _text_blank(out[c])
+    out = out[~blank].reset_index(drop=True)
+    if out.empty:
+        raise InputError("file has a header but no data rows", file=src)
+    return out
+
+
+def _triangle(raw: pd.DataFrame, header: list[str], variable: str, src: str) -> pd.DataFrame:
+    cols = [c for c in raw.columns if c != "_line"]
+    if len(cols) < 2:
+        raise InputError("a triangle needs a period column and at least one release-date column",
+                         file=src, line=1)
+    pcol, dates = cols[0], cols[1:]
+    for c in dates:
+        if not _DATE_HEADER.match(c) or not _valid_day(c):
+            raise InputError(f"column header {c!r} is not a release date YYYY-MM-DD",
+                             file=src, line=1, field=c)
+    vals = raw[dates].to_numpy(dtype=object)  # (row, release column)
+    filled = np.char.strip(vals.astype(str)) != ""
+    r, c = np.nonzero(filled)  # row-major: the order a reader meets the cells
+    if not len(r):
+        raise InputError("the triangle holds no values", file=src)
+    dates_arr = np.asarray(dates, dtype=object)
+    out = pd.DataFrame({
+        "variable": np.full(len(r), variable, dtype=object),
+        "period": raw[pcol].to_numpy(dtype=object)[r],
+        "release": dates_arr[c],
+        "value": vals[r, c],
+        "_line": raw["_line"].to_numpy()[r],
+        "_field": dates_arr[c],
+    })
+    out.attrs["period_field"] = pcol or "column 1"
+    return out
+
+
+def _valid_day(s: str) -> bool:
+    try:
+        np.datetime64(s, "D")
+    except ValueError:
+        return False
+    return True
+
+
+def _text_blank(s: pd.Series) -> np.ndarray:
+    if not _is_text(s):
+        return np.asarray(s.isna())
+    return np.asarray(s.isna() | (s.astype(str).str.strip() == ""))
+
+
+def _is_text(s: pd.Series) -> bool:
+    return s.dtype == object or pd.api.types.is_string_dtype(s.dtype)
+
+
+def _safe(name) -> bool:
+    return isinstance(name, str) and SAFE_NAME.fullmatch(name) is not None
+
+
+_SAFE_RULE = "a letter, then letters, digits or '_', at most 64 characters"
+
+
+def _one_line(msg: str) -> str:
+    return " ".join(msg.split())
 
 
 def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
@@ -122,127 +258,236 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
                    allow_early: bool = False) -> pd.DataFrame:
     """Validate and normalise a long release table; return it ready to append.
 
-    The result has columns variable (str), period (label), release (datetime64[s]),
-    value (float64), sorted, without duplicate rows; ``attrs["freqs"]`` maps variable to
-    frequency.
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        Columns ``variable, period, release, value`` (text or typed); optionally ``_line`` and
+        ``_field`` as written by :func:`read_releases`. Without ``_line`` rows are numbered from 1.
+    known : dict, optional
+        Metadata of the variables already in the store (``{name: {"freq": ...}}``).
+    new_meta : dict, optional
+        Declared metadata (``freq`` may be given) for variables of this batch.
+    source : str, optional
+        File name for messages; defaults to ``df.attrs["source"]`` or ``"<table>"``.
+    allow_early : bool
+        Accept release dates on or before the end of the reference period.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns variable (str), period (canonical label), release (datetime64[s]), value (float64),
+        sorted by variable, period, release, without duplicate rows. ``attrs["freqs"]`` maps
+        variable to frequency; ``attrs["source"]`` is the name used in messages.
 
     Raises
     ------
     InputError
-        Naming file, line and field of the first bad cell, for: a missing column, an unsafe
-        variable name, an unparsable period or release date, a period of the wrong frequency,
-        a variable with mixed frequencies, a non-numeric, NaN or infinite value, a release
-        dated before its reference period ends (unless ``allow_early``), and duplicate cells
-        with different values.
+        Naming file, line and field of the first bad cell (in reading order), for: a missing
+        column, an unsafe variable name, an unparsable period or release date, a blank,
+        non-numeric, NaN or infinite value, a period of the wrong frequency for the variable,
+        a variable with mixed frequencies, a release dated on or before the end of its
+        reference period (unless ``allow_early``), duplicate cells with different values.
     """
     known = known or {}
     new_meta = new_meta or {}
     src = source or df.attrs.get("source") or "<table>"
     allow_early = allow_early or bool(df.attrs.get("allow_early"))
     expected = df.attrs.get("expected_freq")
+    period_field = df.attrs.get("period_field", "period")
     missing = [c for c in REQUIRED if c not in df.columns]
     if missing:
-        raise InputError(f"missing column(s) {missing}; need {list(REQUIRED)}", file=src, field=missing[0])
-    if len(df) == 0:
+        raise InputError(f"missing column(s) {missing}; need {list(REQUIRED)}, got {sorted(map(str, df.columns))}",
+                         file=src, field=missing[0])
+    n = len(df)
+    if n == 0:
         raise InputError("no rows to ingest", file=src)
-    lines = df["_line"].to_numpy() if "_line" in df else np.arange(2, len(df) + 2)
-    fields = df["_field"].to_numpy() if "_field" in df else None
+    lines = df["_line"].to_numpy(dtype=np.int64) if "_line" in df else np.arange(1, n + 1)
+    fields = df["_field"].to_numpy(dtype=object) if "_field" in df else None
 
-    def fail(mask, message, field):
-        i = int(np.flatnonzero(np.asarray(mask))[0])
-        fld = fields[i] if (fields is not None and field in ("value",)) else field
-        raise InputError(message(i), file=src, line=int(lines[i]), field=fld)
+    def where(i: int, field: str) -> dict:
+        if fields is not None and field in ("value", "release"):
+            field = fields[i]
+        elif field == "period":
+            field = period_field
+        return {"file": src, "line": int(lines[i]), "field": field}
 
-    var = df["variable"].astype(str).str.strip().to_numpy()
-    bad = np.array([not SAFE_NAME.match(v) for v in var])
-    if bad.any():
-        fail(bad, lambda i: f"variable name {var[i]!r} is not a safe identifier "
-             "(a letter, then letters, digits or '_', at most 64)", "variable")
+    # --- cell checks: report the first bad cell in reading order, whatever its kind
+    var_codes, var_names, var_bad = _check_variables(df["variable"])
+    ords, freq = parse_periods(df["period"])
+    period_bad = freq == ""
+    rel_days, rel_bad = _parse_releases(df["release"])
+    val, val_blank, val_nonnum, val_nonfinite = _parse_values(df["value"])
+    checks = [  # column order breaks ties on one row
+        (var_bad, "variable", lambda i: f"variable name {_cell(df['variable'], i)!r} is not a safe identifier "
+                                        f"({_SAFE_RULE})"),
+        (period_bad, "period", lambda i: f"cannot parse period {_cell(df['period'], i)!r}; "
+                                         "expected e.g. 2001Q3 or 2001-07"),
+        (rel_bad, "release", lambda i: f"cannot parse release date {_cell(df['release'], i)!r}; "
+                                       "expected YYYY-MM-DD"),
+        (val_blank, "value", lambda i: "value is blank; leave the row out instead"),
+        (val_nonnum, "value", lambda i: f"value {_cell(df['value'], i)!r} is not a number"),
+        (val_nonfinite, "value", lambda i: f"value {_cell(df['value'], i)!r} is NaN or infinite; "
+                                           "leave the cell out instead"),
+    ]
+    firsts = [(int(np.argmax(m)), k) for k, (m, _, _) in enumerate(checks) if m.any()]
+    if firsts:
+        i, k = min(firsts)
+        _, field, message = checks[k]
+        raise InputError(message(i), **where(i, field))
 
-    ords, freq = parse_periods(df["period"].to_numpy())
-    bad = freq == ""
-    if bad.any():
-        fail(bad, lambda i: f"cannot parse period {df['period'].iloc[i]!r}; expected e.g. 2001Q3 or 2001-07", "period")
-
-    rel_raw = df["release"]
-    rel_str = rel_raw.astype(str).str.strip()
-    rel = pd.to_datetime(rel_str, format="%Y-%m-%d", errors="coerce") if rel_raw.dtype == object \
-        else pd.to_datetime(rel_raw, errors="coerce")
-    if rel_raw.dtype == object:
-        rel2 = pd.to_datetime(rel_str, format="ISO8601", errors="coerce")
-        rel = rel.fillna(rel2)
-    bad = rel.isna().to_numpy()
-    if bad.any():
-        fail(bad, lambda i: f"cannot parse release date {rel_raw.iloc[i]!r}; expected YYYY-MM-DD", "release")
-    rel = rel.dt.normalize()
-
-    val_raw = df["value"]
-    val = pd.to_numeric(val_raw.astype(str).str.strip() if val_raw.dtype == object else val_raw, errors="coerce")
-    val = val.to_numpy(dtype=np.float64)
-    nonnum = np.isnan(val) & ~val_raw.astype(str).str.strip().str.lower().isin(["nan", "-nan", "+nan"]).to_numpy()
-    if nonnum.any():
-        fail(nonnum, lambda i: f"value {val_raw.iloc[i]!r} is not a number", "value")
-    bad = ~np.isfinite(val)
-    if bad.any():
-        fail(bad, lambda i: f"value {val_raw.iloc[i]!r} is NaN or infinite; leave the cell out instead", "value")
-
+    # --- one frequency per variable, and the one the store, the caller or the file expects
+    n_var = len(var_names)
+    first_row = np.full(n_var, n, dtype=np.int64)
+    np.minimum.at(first_row, var_codes, np.arange(n))
+    var_freq = freq[first_row]
+    mixed = freq != var_freq[var_codes]
+    if mixed.any():
+        i = int(np.argmax(mixed))
+        name = var_names[var_codes[i]]
+        fs = sorted({str(f) for f in freq[var_codes == var_codes[i]]})
+        raise InputError(f"variable {name!r} mixes frequencies {fs} (line {int(lines[first_row[var_codes[i]]])} "
+                         f"is {_fname(var_freq[var_codes[i]])}); one variable has one frequency", **where(i, "period"))
     freqs: dict[str, str] = {}
-    for name in pd.unique(var):
-        sel = var == name
-        fs = pd.unique(freq[sel])
-        if len(fs) > 1:
-            first_f = freq[np.flatnonzero(sel)[0]]
-            fail(sel & (freq != first_f), lambda i: f"variable {name!r} mixes frequencies "
-                 f"{sorted(fs)}; one variable has one frequency", "period")
-        want = (known.get(name) or {}).get("freq") or (new_meta.get(name) or {}).get("freq") or expected
-        if want is not None and want not in FREQS:
-            raise InputError(f"unknown frequency {want!r} for {name!r}; expected one of {sorted(FREQS)}", file=src)
-        if want is not None and fs[0] != want:
-            fail(sel, lambda i: f"period {df['period'].iloc[i]!r} is {_fname(fs[0])} but variable {name!r} "
-                 f"is {_fname(want)}", "period")
-        freqs[name] = fs[0]
+    for k, name in enumerate(var_names):
+        want, why = _required_freq(name, known, new_meta, expected, src)
+        if want is not None and var_freq[k] != want:
+            i = int(first_row[k])
+            raise InputError(f"period {_cell(df['period'], i)!r} is {_fname(var_freq[k])} but variable "
+                             f"{name!r} is {_fname(want)} ({why})", **where(i, "period"))
+        freqs[name] = str(var_freq[k])
 
+    # --- no value published before its period is over
+    ends = np.empty(n, dtype="datetime64[D]")
+    for f in ("Q", "M"):
+        s = freq == f
+        if s.any():
+            ends[s] = period_end(ords[s], f)
     if not allow_early:
-        ends = np.empty(len(df), dtype="datetime64[D]")
-        for f in ("Q", "M"):
-            s = freq == f
-            if s.any():
-                ends[s] = period_end(ords[s], f)
-        early = rel.to_numpy().astype("datetime64[D]") <= ends
+        early = rel_days <= ends
         if early.any():
-            fail(early, lambda i: f"release date {rel.iloc[i].date()} is not after the end of period "
-                 f"{df['period'].iloc[i]!s} ({ends[i]}); a value cannot be published before its period "
-                 "ends (allow it for forecasts-as-data with --allow-early)", "release")
+            i = int(np.argmax(early))
+            raise InputError(f"release date {rel_days[i]} is not after the end of period "
+                             f"{_cell(df['period'], i)!s} ({ends[i]}); a value cannot be published before "
+                             "its period ends (allow it for forecasts-as-data with --allow-early)",
+                             **where(i, "release"))
 
-    labels = np.empty(len(df), dtype=object)
+    # --- duplicate cells: identical ones collapse, different ones are refused
+    # One frequency per variable is settled, so (variable, ordinal, day) identifies a cell.
+    keys = pd.DataFrame({"v": var_codes, "o": ords, "r": rel_days.astype(np.int64)})
+    dup = keys.duplicated(keep=False).to_numpy()
+    keep = np.ones(n, dtype=bool)
+    if dup.any():
+        d = keys[dup].assign(x=val[dup], pos=np.flatnonzero(dup))
+        g = d.groupby(["v", "o", "r"], sort=False)
+        first_val = g["x"].transform("first").to_numpy()
+        first_pos = g["pos"].transform("first").to_numpy()
+        clash = first_val != d["x"].to_numpy()
+        if clash.any():
+            j = int(np.argmax(clash))
+            i, i0 = int(d["pos"].iloc[j]), int(first_pos[j])
+            raise InputError(f"duplicate cell {var_names[var_codes[i]]} {_cell(df['period'], i)} released "
+                             f"{rel_days[i]} with a different value ({float(val[i])!r} here, {float(val[i0])!r} on line "
+                             f"{int(lines[i0])})", **where(i, "value"))
+        keep[d["pos"].to_numpy()[first_pos != d["pos"].to_numpy()]] = False
+
+    labels = np.empty(n, dtype=object)
     for f in ("Q", "M"):
         s = freq == f
         if s.any():
             labels[s] = format_periods(ords[s], f)
-    out = pd.DataFrame({"variable": var, "period": labels, "release": rel.astype("datetime64[s]").to_numpy(),
-                        "value": val, "_line": lines})
-    key = ["variable", "period", "release"]
-    dup = out.duplicated(key, keep=False)
-    if dup.any():
-        d = out[dup]
-        nunique = d.groupby(key)["value"].transform("nunique")
-        clash = d[nunique > 1]
-        if len(clash):
-            second = clash[clash.duplicated(key, keep="first")].iloc[0]
-            firstrow = clash[(clash[key] == second[key]).all(axis=1)].iloc[0]
-            raise InputError(f"duplicate cell {second['variable']} {second['period']} released "
-                             f"{pd.Timestamp(second['release']).date()} with a different value "
-                             f"({second['value']!r} here, {firstrow['value']!r} on line {int(firstrow['_line'])})",
-                             file=src, line=int(second["_line"]), field="value")
-    out = out.drop_duplicates(key).drop(columns="_line")
-    out["_ord"] = parse_periods(out["period"].to_numpy())[0]
-    out = out.sort_values(["variable", "_ord", "release"]).drop(columns="_ord").reset_index(drop=True)
+    order = np.lexsort((rel_days, ords, var_codes))  # var_names are sorted, so codes sort by name
+    order = order[keep[order]]
+    out = pd.DataFrame({
+        "variable": np.asarray(var_names, dtype=object)[var_codes[order]],
+        "period": labels[order],
+        "release": rel_days[order].astype("datetime64[s]"),
+        "value": val[order],
+    })
     out.attrs["freqs"] = freqs
+    out.attrs["source"] = src
     return out
 
 
+def _cell(s: pd.Series, i: int):
+    v = s.iloc[i]
+    if isinstance(v, np.generic):
+        v = v.item()  # show 'inf', not 'np.float64(inf)'
+    return v.strip() if isinstance(v, str) else v
+
+
+def _check_variables(s: pd.Series) -> tuple[np.ndarray, list[str], np.ndarray]:
+    """Codes into the sorted distinct names, the names, and a mask of unsafe names."""
+    obj = s.to_numpy(dtype=object)
+    na = np.asarray(pd.isna(s))
+    text = np.where(na, "", obj).astype(str)
+    text = np.char.strip(text)
+    names, codes = np.unique(text, return_inverse=True)
+    ok = np.array([_safe(str(x)) for x in names], dtype=bool)
+    bad = ~ok[codes] | na
+    return codes.astype(np.int64), [str(x) for x in names], bad
+
+
+def _parse_releases(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Release days (datetime64[D]) and a mask of unparsable cells."""
+    if isinstance(s.dtype, pd.DatetimeTZDtype):
+        s = s.dt.tz_localize(None)  # keep the wall-clock day the publisher wrote
+    if pd.api.types.is_datetime64_any_dtype(s.dtype):
+        days = s.to_numpy().astype("datetime64[D]")
+        return days, np.isnat(days)
+    if s.dtype != object and not pd.api.types.is_string_dtype(s.dtype):
+        return np.full(len(s), np.datetime64("NaT"), "datetime64[D]"), np.ones(len(s), dtype=bool)
+    # Dates repeat a great deal: parse each distinct text once.
+    codes, uniq = pd.factorize(np.where(pd.isna(s), "", s.to_numpy(dtype=object)).astype(str))
+    uniq = np.char.strip(np.asarray(uniq, dtype=str))
+    ok = np.array([bool(_DATE_CELL.match(u)) for u in uniq], dtype=bool)
+    parsed = np.full(len(uniq), np.datetime64("NaT"), dtype="datetime64[D]")
+    if ok.any():
+        ts = pd.to_datetime(pd.Series(uniq[ok]), format="ISO8601", errors="coerce")
+        parsed[ok] = ts.to_numpy().astype("datetime64[D]")
+    days = parsed[codes]
+    return days, np.isnat(days)
+
+
+def _parse_values(s: pd.Series) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Values (float64) and masks: blank, not a number, NaN or infinite."""
+    n = len(s)
+    no = np.zeros(n, dtype=bool)
+    if pd.api.types.is_bool_dtype(s.dtype):
+        return np.full(n, np.nan), no, np.ones(n, dtype=bool), no
+    if pd.api.types.is_numeric_dtype(s.dtype):
+        val = s.to_numpy(dtype=np.float64, na_value=np.nan)
+        return val, no, no, ~np.isfinite(val)
+    text = pd.Series(np.where(pd.isna(s), "", s.to_numpy(dtype=object)).astype(str)).str.strip()
+    blank = (text == "").to_numpy()
+    val = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    nan_word = text.str.lower().isin(_NAN_WORDS).to_numpy()
+    nonnum = np.isnan(val) & ~nan_word & ~blank
+    nonfinite = ~np.isfinite(val) & ~nonnum & ~blank
+    return val, blank, nonnum, nonfinite
+
+
+def _required_freq(name: str, known: dict, new_meta: dict, expected: str | None,
+                   src: str) -> tuple[str | None, str]:
+    """The frequency a variable must have, and where that requirement comes from."""
+    reqs = []
+    if (known.get(name) or {}).get("freq"):
+        reqs.append((known[name]["freq"], "as recorded in the store"))
+    if (new_meta.get(name) or {}).get("freq"):
+        reqs.append((new_meta[name]["freq"], "as declared for this batch"))
+    if expected is not None:
+        reqs.append((expected, f"as requested with freq={expected}"))
+    for f, why in reqs:
+        if f not in FREQS:
+            raise InputError(f"unknown frequency {f!r} for variable {name!r} ({why}); expected one of "
+                             f"{sorted(FREQS)}", file=src, field="freq")
+    if len({f for f, _ in reqs}) > 1:
+        said = ", ".join(f"{_fname(f)} {why}" for f, why in reqs)
+        raise InputError(f"variable {name!r} is given contradictory frequencies: {said}", file=src, field="freq")
+    return (reqs[0][0], reqs[0][1]) if reqs else (None, "")
+
+
 def _fname(f: str) -> str:
-    return {"Q": "quarterly", "M": "monthly"}.get(f, f)
+    return {"Q": "quarterly", "M": "monthly"}.get(f, f or "unparsable")
 
 
 __all__ = ["read_releases", "validate_table", "REQUIRED", "SAFE_NAME"]

@@ -48,13 +48,17 @@ def _ppy(freq: str) -> int:
     try:
         return PERIODS_PER_YEAR[freq]
     except KeyError:
-        raise ValueError(f"unknown frequency {freq!r}; expected one of {sorted(PERIODS_PER_YEAR)}") from None
+        raise ValueError(
+            f"unknown frequency {freq!r}; expected one of {sorted(PERIODS_PER_YEAR)}"
+        ) from None
 
 
 def _positive_logs(x: np.ndarray, name: str) -> np.ndarray:
     seen = x[~np.isnan(x)]
     if seen.size and seen.min() <= 0:
-        raise ValueError(f"transform {name!r} needs strictly positive levels; got minimum {seen.min()!r}")
+        raise ValueError(
+            f"transform {name!r} needs strictly positive levels; got minimum {seen.min()!r}"
+        )
     return np.log(x)
 
 
@@ -97,8 +101,13 @@ def yoy(values: np.ndarray, freq: str) -> np.ndarray:
     return out
 
 
-_BUILTIN: dict[str, TransformFunc] = {"diff": diff, "dlog": dlog, "dlog_ann": dlog_ann,
-                                      "level": level, "yoy": yoy}
+_BUILTIN: dict[str, TransformFunc] = {
+    "diff": diff,
+    "dlog": dlog,
+    "dlog_ann": dlog_ann,
+    "level": level,
+    "yoy": yoy,
+}
 _REGISTRY: dict[str, TransformFunc] = dict(_BUILTIN)
 
 
@@ -118,7 +127,9 @@ def get_transform(name: str) -> TransformFunc:
     try:
         return _REGISTRY[name]
     except (KeyError, TypeError):
-        raise ValueError(f"unknown transform {name!r}; expected one of {transform_names()}") from None
+        raise ValueError(
+            f"unknown transform {name!r}; expected one of {transform_names()}"
+        ) from None
 
 
 def _check_rowwise(name: str, func: TransformFunc) -> None:
@@ -131,19 +142,28 @@ def _check_rowwise(name: str, func: TransformFunc) -> None:
         before = x.copy()
         full = np.asarray(func(x, freq), dtype=np.float64)
         if not np.array_equal(x, before, equal_nan=True):
-            raise ValueError(f"transform {name!r} modified its input array; it must return a new array")
+            raise ValueError(
+                f"transform {name!r} modified its input array; it must return a new array"
+            )
         if full.shape != x.shape:
-            raise ValueError(f"transform {name!r} must return the input's shape {x.shape}; got {full.shape}")
+            raise ValueError(
+                f"transform {name!r} must return the input's shape {x.shape}; got {full.shape}"
+            )
         flipped = np.asarray(func(x[::-1].copy(), freq), dtype=np.float64)
         single = np.asarray(func(x[1:2].copy(), freq), dtype=np.float64)
-        if not (np.allclose(flipped[::-1], full, equal_nan=True, rtol=1e-12, atol=0.0)
-                and np.allclose(single, full[1:2], equal_nan=True, rtol=1e-12, atol=0.0)):
-            raise ValueError(f"transform {name!r} combines values of different rows (vintages); "
-                             "each output row may depend on the same input row only")
+        if not (
+            np.allclose(flipped[::-1], full, equal_nan=True, rtol=1e-12, atol=0.0)
+            and np.allclose(single, full[1:2], equal_nan=True, rtol=1e-12, atol=0.0)
+        ):
+            raise ValueError(
+                f"transform {name!r} combines values of different rows (vintages); "
+                "each output row may depend on the same input row only"
+            )
 
 
-def register_transform(name: str, func: TransformFunc, *, overwrite: bool = False,
-                       check: bool = True) -> None:
+def register_transform(
+    name: str, func: TransformFunc, *, overwrite: bool = False, check: bool = True
+) -> None:
     """Make a user transformation available by name to information sets, truths and revisions.
 
     This is the one hook for user transformations.
@@ -187,13 +207,19 @@ def register_transform(name: str, func: TransformFunc, *, overwrite: bool = Fals
     if not isinstance(name, str) or not name:
         raise ValueError(f"transform name must be a non-empty string; got {name!r}")
     if name in _BUILTIN:
-        raise ValueError(f"transform {name!r} is built in and cannot be replaced; "
-                         f"built-in names: {sorted(_BUILTIN)}")
+        raise ValueError(
+            f"transform {name!r} is built in and cannot be replaced; "
+            f"built-in names: {sorted(_BUILTIN)}"
+        )
     if name in _REGISTRY and not overwrite:
-        raise ValueError(f"transform {name!r} is already registered; pass overwrite=True to replace it")
+        raise ValueError(
+            f"transform {name!r} is already registered; pass overwrite=True to replace it"
+        )
     if not callable(func):
-        raise ValueError(f"transform {name!r}: expected a callable (values, freq) -> array; "
-                         f"got {type(func).__name__}")
+        raise ValueError(
+            f"transform {name!r}: expected a callable (values, freq) -> array; "
+            f"got {type(func).__name__}"
+        )
     if check:
         _check_rowwise(name, func)
     _REGISTRY[name] = func
@@ -203,8 +229,10 @@ def apply_transform(name: str, values: np.ndarray, freq: str) -> np.ndarray:
     """Apply a named transformation to ``(n_vintages, n_periods)`` levels, checking the shape."""
     x = np.asarray(values, dtype=np.float64)
     if x.ndim != 2:
-        raise ValueError(f"transform {name!r}: expected a 2-D array (n_vintages, n_periods); "
-                         f"got {x.ndim} dimension(s)")
+        raise ValueError(
+            f"transform {name!r}: expected a 2-D array (n_vintages, n_periods); "
+            f"got {x.ndim} dimension(s)"
+        )
     with np.errstate(invalid="ignore", divide="ignore"):
         out = np.asarray(get_transform(name)(x, freq), dtype=np.float64)
     if out.shape != x.shape:
@@ -224,17 +252,22 @@ def check_conversion(convert: str, transform: str, partial: str = "keep") -> Non
     if convert not in CONVERSIONS:
         raise ValueError(f"unknown conversion {convert!r}; expected one of {sorted(CONVERSIONS)}")
     if partial not in PARTIAL_POLICIES:
-        raise ValueError(f"unknown partial-quarter policy {partial!r}; "
-                         f"expected one of {sorted(PARTIAL_POLICIES)}")
+        raise ValueError(
+            f"unknown partial-quarter policy {partial!r}; "
+            f"expected one of {sorted(PARTIAL_POLICIES)}"
+        )
     if convert == "mean3" and transform not in MEAN3_TRANSFORMS:
-        raise ValueError(f"conversion 'mean3' is defined for the log growth transforms "
-                         f"{sorted(MEAN3_TRANSFORMS)}; got transform {transform!r} "
-                         "(for 'diff' use 'mean': differences of 3-month means already carry "
-                         "the 1-2-3-2-1 weights exactly)")
+        raise ValueError(
+            f"conversion 'mean3' is defined for the log growth transforms "
+            f"{sorted(MEAN3_TRANSFORMS)}; got transform {transform!r} "
+            "(for 'diff' use 'mean': differences of 3-month means already carry "
+            "the 1-2-3-2-1 weights exactly)"
+        )
 
 
-def months_to_quarters(values: np.ndarray, first_month: int, method: str = "mean", *,
-                       partial: str = "keep") -> tuple[np.ndarray, int, np.ndarray, np.ndarray]:
+def months_to_quarters(
+    values: np.ndarray, first_month: int, method: str = "mean", *, partial: str = "keep"
+) -> tuple[np.ndarray, int, np.ndarray, np.ndarray]:
     """Convert monthly levels to quarterly levels, row by row (each row one vintage).
 
     Parameters
@@ -286,7 +319,7 @@ def months_to_quarters(values: np.ndarray, first_month: int, method: str = "mean
     lead = int(first_month) % 3  # months of the first quarter before column 0
     nq = (lead + nm + 2) // 3
     padded = np.full((n, nq * 3), np.nan)
-    padded[:, lead:lead + nm] = x
+    padded[:, lead : lead + nm] = x
     block = padded.reshape(n, nq, 3)
     seen = ~np.isnan(block)
     count = seen.sum(axis=2)

@@ -64,7 +64,7 @@ def select_ar_order(y: np.ndarray, max_lags: int, ic: str = "bic") -> tuple[int,
     Schwarz, G. (1978). Estimating the dimension of a model. *Annals of Statistics* 6(2), 461-464.
     Akaike, H. (1974). A new look at the statistical model identification. *IEEE Transactions on
     Automatic Control* 19(6), 716-723.
-    Lütkepohl, H. (2005). *New Introduction to Multiple Time Series Analysis*, Springer, sec. 4.3
+    Lütkepohl, H. (2005). *New Introduction to Multiple Time Series Analysis*, Springer, ch. 4
     (order selection on a common sample).
     """
     yt, x_full = ar_design(y, max_lags)
@@ -156,13 +156,15 @@ class AutoRegression(BaseModel):
         lay = self._layout(info, targets, n_draws, rng)
         nv, nh = lay.observed.shape
         draws = np.zeros((n_draws, nv, nh))
+        runs = [trailing_run(lay.values[:, col]) for col in lay.columns]
+        fitted = [self.fit_series(lay.values[start:stop, col], name)
+                  for (start, stop), col, name in zip(runs, lay.columns, targets.variables, strict=True)]
+        all_steps = lay.steps(np.array([lay.ordinals[stop - 1] for _, stop in runs]))
         fits = {}
-        for j, col in enumerate(lay.columns):
-            name = targets.variables[j]
-            start, stop = trailing_run(lay.values[:, col])
-            fit = self.fit_series(lay.values[start:stop, col], name)
-            fits[name] = {k: v for k, v in fit.items() if k in ("order", "coef", "sigma2", "dof")}
-            steps = lay.steps(lay.ordinals[stop - 1])[j]
+        for j, fit in enumerate(fitted):
+            fits[targets.variables[j]] = {k: v for k, v in fit.items()
+                                          if k in ("order", "coef", "sigma2", "dof")}
+            steps = all_steps[j]
             horizon = int(steps.max())
             if horizon <= 0:
                 continue

@@ -315,8 +315,10 @@ class TargetLayout:
         Period ordinals of the panel rows (consecutive).
     columns : ndarray (n_target_vars,)
         Column of each target variable in ``values``.
-    target_ordinals : ndarray (n_horizons,)
-        Period ordinal of each horizon's target.
+    target_ordinals : ndarray (n_target_vars, n_horizons)
+        Panel row label (period ordinal) holding each target: the target period itself, plus
+        the variable's vertical-realignment shift when the panel was realigned
+        (``info.shifts``; the row of period ``p`` holds reference period ``p - shift``).
     observed : ndarray (n_target_vars, n_horizons) bool
         True where the target period already has a value in the panel.
     observed_values : ndarray (n_target_vars, n_horizons)
@@ -362,11 +364,15 @@ class TargetLayout:
             raise ValueError(f"model {model!r}: the panel's periods must be consecutive, got "
                              f"{list(info.periods.astype(str))[:5]}...")
         columns = np.array([variables.index(v) for v in targets.variables], dtype=np.int64)
+        shifts = getattr(info, "shifts", None) or {}
+        shift = np.array([int(shifts.get(v, 0)) for v in targets.variables], dtype=np.int64)
         tord = np.array([(targets.current + int(h)).ordinal for h in targets.horizons], dtype=np.int64)
+        tord = tord[None, :] + shift[:, None]
         rows = tord - ordinals[0]
         inside = (rows >= 0) & (rows < len(ordinals))
-        obs_vals = np.full((len(columns), len(tord)), np.nan)
-        obs_vals[:, inside] = values[np.ix_(rows[inside], columns)].T
+        obs_vals = np.full(tord.shape, np.nan)
+        jj, kk = np.nonzero(inside)
+        obs_vals[jj, kk] = values[rows[jj, kk], columns[jj]]
         observed = np.isfinite(obs_vals)
         return cls(variables, values, ordinals, targets, columns, tord, observed, obs_vals,
                    int(n_draws), model)
@@ -378,7 +384,7 @@ class TargetLayout:
         sample, or a period before the panel starts) cannot be forecast and raises ``ValueError``.
         """
         anchor = np.broadcast_to(np.asarray(anchor, dtype=np.int64), (len(self.columns),))
-        s = self.target_ordinals[None, :] - anchor[:, None]
+        s = self.target_ordinals - anchor[:, None]
         bad = (~self.observed) & (s <= 0)
         if bad.any():
             j, k = np.argwhere(bad)[0]

@@ -58,7 +58,7 @@ def ma_matrices(coefs: np.ndarray, steps: int) -> np.ndarray:
 
     References
     ----------
-    Lütkepohl, H. (2005). *New Introduction to Multiple Time Series Analysis*, Springer, eq. (2.1.22).
+    Lütkepohl, H. (2005). *New Introduction to Multiple Time Series Analysis*, Springer, sec. 2.1.
     """
     n = coefs.shape[-1]
     p, a = _split(coefs, n)
@@ -93,6 +93,8 @@ def _recurse(coefs: np.ndarray, init: np.ndarray, shocks: np.ndarray, tail: np.n
     d, h, n = shocks.shape
     k = coefs.shape[1]
     p = (k - 1) // n
+    # (D, n, k) contiguous: the per-step product is then one fast contraction over k
+    bt = np.ascontiguousarray(np.swapaxes(coefs, 1, 2))
     x = np.empty((d, k))
     x[:, -1] = 1.0
     init = np.broadcast_to(init, (d, p, n))
@@ -101,7 +103,8 @@ def _recurse(coefs: np.ndarray, init: np.ndarray, shocks: np.ndarray, tail: np.n
     out = np.empty((d, h, n))
     r = 0 if tail is None else tail.shape[0]
     for t in range(h):
-        y = np.matmul(x[:, None, :], coefs)[:, 0, :] + shocks[:, t, :]
+        y = np.einsum("dnk,dk->dn", bt, x)
+        y += shocks[:, t, :]
         if t < r:
             # conditioned cells equal the data up to rounding; pin them exactly
             y[:, observed[t]] = tail[t, observed[t]]
@@ -163,7 +166,10 @@ def var_paths(coefs: np.ndarray, init: np.ndarray, factors: np.ndarray, innovati
             z = _condition(coefs, init, f, innovations, tail, observed)
         else:
             tail, observed = None, None
-    shocks = np.einsum("dhij,dhj->dhi", f, z)
+    if factors.ndim == 3:
+        shocks = z @ np.swapaxes(factors, 1, 2)  # e_t' = z_t' F'
+    else:
+        shocks = (f @ z[..., None])[..., 0]
     return _recurse(coefs, init, shocks, tail, observed)
 
 
@@ -220,7 +226,7 @@ def conditional_moments(coef: np.ndarray, cov: np.ndarray, init: np.ndarray, ste
     ----------
     Waggoner, D. F. and Zha, T. (1999), *Review of Economics and Statistics* 81(4), 639-651;
     Anderson, T. W. (2003). *An Introduction to Multivariate Statistical Analysis*, 3rd ed.,
-    Wiley, Theorem 2.5.1 (conditional normal distribution).
+    Wiley, sec. 2.5 (conditional normal distributions).
     """
     n = coef.shape[1]
     covs = np.broadcast_to(cov, (steps, n, n)) if np.ndim(cov) == 2 else np.asarray(cov)

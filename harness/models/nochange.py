@@ -72,18 +72,18 @@ class NoChange(BaseModel):
         lay = self._layout(info, targets, n_draws, rng)
         nv, nh = lay.observed.shape
         draws = np.zeros((n_draws, nv, nh))
-        anchors, scales = [], {}
+        runs = [trailing_run(lay.values[:, col]) for col in lay.columns]
+        for name, (start, stop) in zip(targets.variables, runs, strict=True):
+            if stop - start < 2:
+                raise self._fail(f"variable {name!r} needs at least 2 observations, got {stop - start}")
+        steps = lay.steps(np.array([lay.ordinals[stop - 1] for _, stop in runs]))
+        scales = {}
         for j, col in enumerate(lay.columns):
-            y_all = lay.values[:, col]
-            start, stop = trailing_run(y_all)
-            y = y_all[start:stop]
+            start, stop = runs[j]
+            y = lay.values[start:stop, col]
             name = targets.variables[j]
-            if len(y) < 2:
-                raise self._fail(f"variable {name!r} needs at least 2 observations, got {len(y)}")
-            anchors.append(lay.ordinals[stop - 1])
-            steps = lay.steps(lay.ordinals[stop - 1])[j]
-            for k in np.flatnonzero(steps > 0):
-                s = int(steps[k])
+            for k in np.flatnonzero(steps[j] > 0):
+                s = int(steps[j, k])
                 point, err = self._point_and_errors(y, s, name)
                 if self.density == "gaussian":
                     scale = np.sqrt(np.mean(err * err))
@@ -91,7 +91,6 @@ class NoChange(BaseModel):
                     scales[(name, s)] = float(scale)
                 else:
                     draws[:, j, k] = point + err[rng.integers(0, len(err), size=n_draws)]
-        self.last_observed_ = dict(zip(targets.variables, [int(a) for a in anchors]))
         self.scales_ = scales
         return self._output(draws, lay)
 
