@@ -40,7 +40,7 @@ convert = "mean"
 
 [targets]
 variables = ["gdp", "cpi"]
-horizons = {{ min = -1, max = {hmax} }}   # h<0 backcast, 0 nowcast, >0 forecast
+horizons = {{ min = 0, max = {hmax} }}    # h<0 backcast, 0 nowcast, >0 forecast
 
 [models.rw]
 type = "nochange"
@@ -69,7 +69,7 @@ def demo_spec_text(*, small: bool = False) -> str:
     """The demo spec; ``small`` gives a reduced run (fewer origins and draws)."""
     if small:
         return DEMO_SPEC.format(draws=400, start="2016-01-01", hmax=4, sv_extra="n_iter = 600\nburn = 200\n")
-    return DEMO_SPEC.format(draws=2000, start="2006-01-01", hmax=8, sv_extra="")
+    return DEMO_SPEC.format(draws=2000, start="2006-01-01", hmax=8, sv_extra="n_iter = 1000\nburn = 300\n")
 
 
 def write_demo_data(out: Path, *, small: bool = False) -> Path:

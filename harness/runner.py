@@ -299,6 +299,8 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
             records[t.key] = dict(old, cached=True)
         else:
             todo.append(t)
+    # origin-major order: slow and fast models interleave, so workers stay busy to the end
+    todo.sort(key=lambda t: (t.index, t.model))
     n_cached = len(records)
     say(f"run {spec.name}: {len(plan.tasks)} tasks, {n_cached} from cache, {len(todo)} to compute "
         f"(backend {backend}, jobs {jobs or os.cpu_count()})")

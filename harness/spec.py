@@ -60,7 +60,7 @@ from harness.errors import SpecError
 
 RUN_KEYS = {"store", "out", "seed", "draws", "freq", "policy", "mode", "cache", "name"}
 SECTION_KEYS = {"run", "origins", "variables", "targets", "models", "scoring"}
-VARIABLE_KEYS = {"transform", "convert", "partial"}
+VARIABLE_KEYS = {"transform", "convert", "partial"}  # partial: keep | drop (default: drop for targets)
 TARGET_KEYS = {"variables", "horizons"}
 SCORING_KEYS = {"benchmark", "truths", "truth", "chronology", "cycle_variable", "subperiods",
                 "quantile_levels", "coverage_levels", "min_phase", "min_cycle"}
@@ -261,6 +261,12 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
         vspec[vname] = d
 
     tg = raw["targets"]
+    targets_listed = tg.get("variables", []) if isinstance(tg, dict) else []
+    for vname, d in vspec.items():
+        # a partially observed quarter of a *target* would count as already observed and make
+        # its nowcast degenerate: by default targets drop partial quarters, indicators keep them
+        if "convert" in d and "partial" not in d:
+            d["partial"] = "drop" if vname in targets_listed else "keep"
     _check_keys(path, "[targets]", tg, TARGET_KEYS, required=("variables", "horizons"))
     tv = tg["variables"]
     if not isinstance(tv, list) or not tv:

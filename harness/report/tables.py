@@ -564,6 +564,14 @@ def _var_order(present, variables=None) -> list[str]:
     return [v for v in wanted if v in present] + [v for v in present if v not in wanted]
 
 
+def _group_label(h: int, rows) -> str:
+    """``horizon h``, flagged when every ratio is 1 (all models score the same, e.g. a published target)."""
+    vals = np.array([c.value for _, cs in rows for c in cs], dtype=np.float64)
+    same = len(rows) > 1 and bool(len(vals)) and bool(np.all(np.isfinite(vals))) and bool(
+        np.allclose(vals, 1.0, rtol=0, atol=1e-9))
+    return f"horizon {h}" + (" (every model scores the same here)" if same else "")
+
+
 def _pvalues(evaluation) -> dict:
     t = evaluation.tests
     if t is None or not len(t):
@@ -636,10 +644,7 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
                         p = None if m == bench else pv.get((m, var, h, sp, s))
                         cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p))
                     rows.append((m, cells))
-                vals = np.array([c.value for _, cs in rows for c in cs], dtype=np.float64)
-                same = bool(len(vals)) and np.all(np.isfinite(vals)) and np.allclose(vals, 1.0, rtol=0, atol=1e-9)
-                label = f"horizon {h}" + (" (every model scores the same here)" if same and len(rows) > 1 else "")
-                groups.append(RowGroup(label, {"variable": str(var), "horizon": h}, rows))
+                groups.append(RowGroup(_group_label(h, rows), {"variable": str(var), "horizon": h}, rows))
             name = slug(prefix, var, f"h{block[0]}" if len(block) == 1 else f"h{block[0]}to{block[-1]}")
             tables.append(GridTable(
                 name=name, title=f"{title}: {var}, {horizon_label(block)}", columns=columns,
@@ -726,7 +731,7 @@ def sensitivity_ratio_tables(sensitivity, benchmark: str, variables=None) -> lis
                     r, n = lookup.get((m, h, t), (np.nan, None))
                     cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n)))
                 rows.append((m, cells))
-            groups.append(RowGroup(f"horizon {h}", {"variable": str(var), "horizon": h}, rows))
+            groups.append(RowGroup(_group_label(h, rows), {"variable": str(var), "horizon": h}, rows))
         tables.append(GridTable(
             name=slug("sensitivity_truths", var), title=f"CRPS ratio to the benchmark under each truth: {var}",
             columns=[("CRPS ratio", t) for t in truths], column_levels=("score", "truth"), row_name="model",

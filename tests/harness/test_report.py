@@ -154,6 +154,17 @@ def test_without_since_sensitivity_or_ledger(bundle, tmp_path):
     assert "it was not given" in text
 
 
+def test_empty_comparison_tables_are_reported_not_fatal(bundle, tmp_path):
+    """With no tests, MCS, calibration or fluctuation rows (too few forecasts) the report still builds and says so."""
+    ev = dataclasses.replace(bundle.evaluation, tests=pd.DataFrame(), mcs=pd.DataFrame(),
+                             calibration=pd.DataFrame(), fluctuation=pd.DataFrame())
+    paths = build_report(ev, tmp_path)
+    text = paths["report.html"].read_text(encoding="utf-8")
+    assert "No fluctuation test in this evaluation" in text
+    assert "No calibration tests in this evaluation" in text
+    assert 'class="sig"' not in text  # no stars without tests
+
+
 def test_page_is_self_contained(page):
     """No src/href points outside the file; images are base64 PNG data URIs; no script, no link tags."""
     p = _parse(page)
