@@ -293,7 +293,7 @@ def _fluctuation(fc, benchmark, compare, mu) -> pd.DataFrame:
             ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
             if ok.sum() < 20:
                 continue
-            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.10, h=_steps(h))
+            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.05, h=_steps(h))
             ends = tps[ok][np.asarray(r.window_end, dtype=int)]
             for t, val in zip(ends, r.path, strict=True):
                 rows.append(dict(model=model, variable=var, horizon=h, target_period=t, stat=float(val),

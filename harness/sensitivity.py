@@ -66,8 +66,10 @@ def ranking_swaps(scores: pd.DataFrame, *, by: str = "truth", model: str = "mode
             if np.sign(ref[a] - ref[b]) * np.sign(cur[a] - cur[b]) < 0:
                 first, second = (a, b) if ref[a] < ref[b] else (b, a)
                 swaps.append(f"{first}>{second}")
-        rho = spearmanr(ref.to_numpy(), cur.to_numpy()).statistic if len(wide) > 2 else (
-            1.0 if not swaps else -1.0)
+        if len(wide) > 2 and ref.nunique() > 1 and cur.nunique() > 1:
+            rho = spearmanr(ref.to_numpy(), cur.to_numpy()).statistic
+        else:  # two models, or all tied: the correlation is undefined; say whether the order held
+            rho = 1.0 if not swaps else -1.0
         rows.append({by: lv, "reference": reference, "spearman": float(rho),
                      "ranking": " < ".join(cur.sort_values().index.astype(str)),
                      "reference_ranking": " < ".join(ref.sort_values().index.astype(str)),
@@ -159,17 +161,29 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
     b = pseudo.forecasts[key + [score]]
     m = a.merge(b, on=key, suffixes=("_rt", "_pseudo"))
     m = m[np.isfinite(m[f"{score}_rt"]) & np.isfinite(m[f"{score}_pseudo"])]
+    bench = real_eval.benchmark
+
+    def ratios(ev):
+        r = ev.relative[ev.relative["subperiod"] == "full"]
+        return r.set_index(["model", "variable", "horizon"])[score]
+
+    r_rt, r_ps = ratios(real_eval), ratios(pseudo)
     rows = []
     for (model, var, h), g in m.groupby(["model", "variable", "horizon"], sort=True):
         g = g.sort_values("origin")
         rt, ps = g[f"{score}_rt"].to_numpy(), g[f"{score}_pseudo"].to_numpy()
         row = dict(model=model, variable=var, horizon=h, n=len(g), real_time=rt.mean(), pseudo=ps.mean(),
-                   difference=rt.mean() - ps.mean(), stat=np.nan, pvalue=np.nan)
+                   difference=rt.mean() - ps.mean(), stat=np.nan, pvalue=np.nan,
+                   ratio_real_time=r_rt.get((model, var, h), np.nan), ratio_pseudo=r_ps.get((model, var, h), np.nan))
         if len(g) >= 4 and np.any(rt != ps):
             r = compare.diebold_mariano(rt, ps, h=max(int(h) + 1, 1))
             row.update(stat=r.stat, pvalue=r.pvalue)
         rows.append(row)
-    return pd.DataFrame(rows), pseudo, res
+    out = pd.DataFrame(rows)
+    if len(out):
+        out["verdict_flips"] = (out["model"] != bench) & (
+            (out["ratio_real_time"] < 1) != (out["ratio_pseudo"] < 1))
+    return out, pseudo, res
 
 
 def revision_exposure(evs: dict, benchmark: str, truths) -> pd.DataFrame:
@@ -205,22 +219,26 @@ def _verdicts(truth_table, rankings, data_table, benchmark, alpha=0.10) -> pd.Da
         share_truth = float(stable.mean()) if len(stable) else np.nan
         flips = [f"{v} h={h}" for (v, h), s in stable.items() if not s]
         d = data_table[data_table["model"] == model] if len(data_table) else pd.DataFrame()
-        sig = d[(d["pvalue"] < alpha)] if len(d) else d
         parts = []
         if share_truth == 1.0:
             parts.append("win/lose verdict against the benchmark identical under every truth")
         else:
             parts.append(f"verdict against the benchmark changes with the truth in {len(flips)} of "
                          f"{len(stable)} cells ({', '.join(flips[:4])}{'…' if len(flips) > 4 else ''})")
+        data_flips = 0
         if len(d):
-            if len(sig) == 0:
-                parts.append("real-time and pseudo-real-time scores not significantly different "
-                             f"(DM at {int(alpha * 100)}%)")
+            data_flips = int(d["verdict_flips"].sum())
+            sig = d[d["pvalue"] < alpha]
+            if data_flips == 0:
+                parts.append("same verdict with real-time and with revised (pseudo-real-time) data")
             else:
+                cells = ", ".join(f"{r.variable} h={r.horizon}" for r in d[d["verdict_flips"]].itertuples())
+                parts.append(f"verdict changes with revised data in {data_flips} of {len(d)} cells ({cells})")
+            if len(sig):
                 direction = "worse" if sig["difference"].mean() > 0 else "better"
-                parts.append(f"real-time scores significantly {direction} than with revised data in {len(sig)} of "
-                             f"{len(d)} cells")
-        robust = share_truth == 1.0 and (len(d) == 0 or len(sig) == 0)
+                parts.append(f"its real-time CRPS is significantly {direction} than with revised data in "
+                             f"{len(sig)} of {len(d)} cells (DM, {int(alpha * 100)}%)")
+        robust = share_truth == 1.0 and data_flips == 0
         rows.append(dict(model=model, robust=robust,
                          verdict=("ROBUST: " if robust else "NOT ROBUST: ") + "; ".join(parts)))
     return pd.DataFrame(rows)

@@ -22,6 +22,14 @@ class InputError(VintageError, ValueError):
         super().__init__(text.replace("\r\n", " ").replace("\n", " ").replace("\r", " "))
         self.file, self.line, self.field, self.reason = file, line, field, message
 
+    def __reduce__(self):
+        # Keep file/line/field when the error crosses a process boundary (joblib workers).
+        return (_input_error, (self.reason, self.file, self.line, self.field))
+
+
+def _input_error(message, file, line, field) -> InputError:
+    return InputError(message, file=file, line=line, field=field)
+
 
 class ReleaseConflictError(VintageError, ValueError):
     """A batch would change a value already published for the same (variable, period, release)."""

@@ -105,7 +105,7 @@ def read_releases(path: str | Path, layout: str = "long", variable: str | None =
     if layout == "long":
         out = _long(raw, src)
     else:
-        out = _triangle(raw, header, variable, src)
+        out = _triangle(raw, variable, src)
     out.attrs["source"] = src
     out.attrs["expected_freq"] = freq
     return out
@@ -196,7 +196,7 @@ def _long(raw: pd.DataFrame, src: str) -> pd.DataFrame:
     return out
 
 
-def _triangle(raw: pd.DataFrame, header: list[str], variable: str, src: str) -> pd.DataFrame:
+def _triangle(raw: pd.DataFrame, variable: str, src: str) -> pd.DataFrame:
     cols = [c for c in raw.columns if c != "_line"]
     if len(cols) < 2:
         raise InputError("a triangle needs a period column and at least one release-date column",

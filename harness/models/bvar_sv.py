@@ -58,6 +58,7 @@ Geyer, C. J. (1992). Practical Markov chain Monte Carlo. *Statistical Science* 7
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
 import scipy.linalg as sla
@@ -201,6 +202,204 @@ def _indicators_loop(dev, u, means, logw, variances):  # compiled by numba when 
     return out
 
 
+def _gibbs_loop(yt, x, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs, u, a, h, phi,
+                z_lin, unif, z_vol, chi, slot, mix_means, mix_logw, mix_vars, logsq_offset,
+                keep_coefs, keep_a, keep_h, keep_phi):  # compiled by numba when available
+    """Gibbs iterations, blocks 1-5 as in :func:`_gibbs_reference`, from pre-drawn random numbers.
+
+    The state ``coefs, u, a, h, phi`` is updated in place; iteration ``it`` uses ``z_lin[it]``
+    (``n k`` coefficient normals, then ``1 + ... + (n - 1)`` impact normals), ``unif[it]``,
+    ``z_vol[it]`` (equation-major) and ``chi[it]``, and is stored in the ``keep_*`` arrays at
+    ``slot[it]`` when that is not negative. Returns ``(0, 0)``, or ``(block, it)`` for the first
+    posterior precision that is not positive definite (block 1: coefficients, 2: impacts).
+    """
+    t, n = yt.shape
+    k = x.shape[1]
+    c = mix_means.shape[0]
+    inv_lam = np.empty((t, n))
+    e = np.empty((t, n))
+    ystar = np.empty((t, n))
+    comp = np.empty((t, n), dtype=np.int64)
+    w = np.empty(t)
+    v = np.empty(t)
+    prec = np.empty((k, k))
+    g = np.empty(k)
+    b = np.empty(k)
+    lp = np.empty(c)
+    ld = np.empty(t)
+    ls = np.empty(t)
+    tv = np.empty(t)
+    td = np.empty(t)
+    tr = np.empty(t)
+    for it in range(z_lin.shape[0]):
+        for s in range(t):
+            for j in range(n):
+                inv_lam[s, j] = np.exp(-h[s, j])
+                acc = 0.0
+                for m in range(j + 1):
+                    acc += u[s, m] * a[j, m]
+                e[s, j] = acc
+        # 1. coefficients, equation by equation: e_j for j >= i become the partial residuals r_j,
+        # the weighted normal equations are accumulated, then e_j is restored with the new b_i
+        for i in range(n):
+            for s in range(t):
+                xb = 0.0
+                for q in range(k):
+                    xb += x[s, q] * coefs[q, i]
+                ws = 0.0
+                vs = 0.0
+                for j in range(i, n):
+                    aji = a[j, i]
+                    r = e[s, j] + xb * aji
+                    e[s, j] = r
+                    ws += inv_lam[s, j] * (aji * aji)
+                    vs += inv_lam[s, j] * r * aji
+                w[s] = ws
+                v[s] = vs
+            for q in range(k):
+                g[q] = inv_v0[q, i] * b0[q, i]
+                for d in range(q + 1):
+                    prec[q, d] = 0.0
+            for s in range(t):
+                for q in range(k):
+                    xq = x[s, q]
+                    g[q] += xq * v[s]
+                    xw = xq * w[s]
+                    for d in range(q + 1):
+                        prec[q, d] += xw * x[s, d]
+            for q in range(k):
+                prec[q, q] += inv_v0[q, i]
+            # Cholesky K = L L' in the lower triangle, then L' b = L^{-1} g + z (mean plus noise)
+            for q in range(k):
+                for d in range(q + 1):
+                    acc = prec[q, d]
+                    for m in range(d):
+                        acc -= prec[q, m] * prec[d, m]
+                    if d < q:
+                        prec[q, d] = acc / prec[d, d]
+                    elif acc > 0.0:
+                        prec[q, q] = np.sqrt(acc)
+                    else:  # also catches NaN
+                        return 1, it
+                acc = g[q]
+                for m in range(q):
+                    acc -= prec[q, m] * g[m]
+                g[q] = acc / prec[q, q]
+            for q in range(k):
+                g[q] += z_lin[it, i * k + q]
+            for q in range(k - 1, -1, -1):
+                acc = g[q]
+                for m in range(q + 1, k):
+                    acc -= prec[m, q] * b[m]
+                b[q] = acc / prec[q, q]
+            for q in range(k):
+                coefs[q, i] = b[q]
+            for s in range(t):
+                xb = 0.0
+                for q in range(k):
+                    xb += x[s, q] * b[q]
+                u[s, i] = yt[s, i] - xb
+                for j in range(i, n):
+                    e[s, j] -= xb * a[j, i]
+        # 2. free elements of A, row by row: u_i = -u_{<i}' a_i + e^{h_i/2} eps
+        off = n * k
+        for i in range(1, n):
+            for q in range(i):
+                acc = 0.0
+                for s in range(t):
+                    acc -= u[s, q] * inv_lam[s, i] * u[s, i]
+                g[q] = acc
+                for d in range(q + 1):
+                    acc = 0.0
+                    for s in range(t):
+                        acc += u[s, q] * inv_lam[s, i] * u[s, d]
+                    prec[q, d] = acc
+                prec[q, q] += 1.0 / a_prior_var
+            for q in range(i):
+                for d in range(q + 1):
+                    acc = prec[q, d]
+                    for m in range(d):
+                        acc -= prec[q, m] * prec[d, m]
+                    if d < q:
+                        prec[q, d] = acc / prec[d, d]
+                    elif acc > 0.0:
+                        prec[q, q] = np.sqrt(acc)
+                    else:
+                        return 2, it
+                acc = g[q]
+                for m in range(q):
+                    acc -= prec[q, m] * g[m]
+                g[q] = acc / prec[q, q]
+            for q in range(i):
+                g[q] += z_lin[it, off + q]
+            for q in range(i - 1, -1, -1):
+                acc = g[q]
+                for m in range(q + 1, i):
+                    acc -= prec[m, q] * a[i, m]
+                a[i, q] = acc / prec[q, q]
+            off += i
+        # 3. mixture indicators given e = A u (inverse CDF, as in _indicators_loop)
+        for s in range(t):
+            for j in range(n):
+                acc = 0.0
+                for m in range(j + 1):
+                    acc += u[s, m] * a[j, m]
+                ys = np.log(acc * acc + logsq_offset)
+                ystar[s, j] = ys
+                dev = ys - h[s, j]
+                mx = -np.inf
+                for q in range(c):
+                    d = dev - mix_means[q]
+                    lp[q] = mix_logw[q] - 0.5 * d * d / mix_vars[q]
+                    mx = max(mx, lp[q])
+                total = 0.0
+                for q in range(c):
+                    lp[q] = total + np.exp(lp[q] - mx)
+                    total = lp[q]
+                thr = unif[it, s, j] * total
+                kk = 0
+                for q in range(c):
+                    if lp[q] < thr:
+                        kk += 1
+                comp[s, j] = min(kk, c - 1)
+        # 4. log-volatility paths: tridiagonal precision per equation (as in sample_log_volatility)
+        for j in range(n):
+            inv_phi = 1.0 / phi[j]
+            for s in range(t):
+                po = 1.0 / mix_vars[comp[s, j]]
+                if s == 0:
+                    dg = inv_phi + 1.0 / h1_var if t > 1 else 1.0 / h1_var
+                elif s == t - 1:
+                    dg = inv_phi
+                else:
+                    dg = 2.0 * inv_phi
+                td[s] = dg + po
+                tr[s] = (ystar[s, j] - mix_means[comp[s, j]]) * po
+            tr[0] += h1_mean[j] / h1_var
+            ld[0] = np.sqrt(td[0])
+            tv[0] = tr[0] / ld[0]
+            for s in range(1, t):
+                ls[s - 1] = -inv_phi / ld[s - 1]
+                ld[s] = np.sqrt(td[s] - ls[s - 1] * ls[s - 1])
+                tv[s] = (tr[s] - ls[s - 1] * tv[s - 1]) / ld[s]
+            h[t - 1, j] = (tv[t - 1] + z_vol[it, j * t + t - 1]) / ld[t - 1]
+            for s in range(t - 2, -1, -1):
+                h[s, j] = (tv[s] + z_vol[it, j * t + s] - ls[s] * h[s + 1, j]) / ld[s]
+            # 5. log-volatility innovation variance (scaled inverse chi-square)
+            sse = 0.0
+            for s in range(t - 1):
+                dh = h[s + 1, j] - h[s, j]
+                sse += dh * dh
+            phi[j] = (vol_sse0 + sse) / chi[it, j]
+        kept = slot[it]
+        if kept >= 0:
+            keep_coefs[kept] = coefs
+            keep_a[kept] = a
+            keep_h[kept] = h
+            keep_phi[kept] = phi
+    return 0, 0
+
+
 _FAST: dict[str, object] = {}
 
 
@@ -213,11 +412,13 @@ def _fast_kernels() -> dict[str, object]:
             tri = numba.njit(cache=True)(_tridiag_draw_loop)
             ind = numba.njit(cache=True)(_indicators_loop)
             _FAST["tridiag"] = tri
+            _FAST["gibbs"] = numba.njit(cache=True)(_gibbs_loop)
             _FAST["indicators"] = lambda dev, u: ind(dev.ravel(), u.ravel(), _MIX_MEANS, _MIX_LOGW,
                                                      KSC_VARIANCES).reshape(dev.shape)
         except ImportError:  # pragma: no cover - numba is a declared dependency
             _FAST["tridiag"] = _tridiag_draw_reference
             _FAST["indicators"] = _indicators_reference
+            _FAST["gibbs"] = None  # sv_gibbs falls back to the NumPy/SciPy blocks
     return _FAST
 
 
@@ -383,15 +584,115 @@ def _minnesota_independent(n: int, lags: int, tightness: float, cross: float, la
     return mean, var
 
 
-def sv_gibbs(y: np.ndarray, lags: int, prior_mean_coef: np.ndarray, prior_var_coef: np.ndarray,
-             a_prior_var: float, vol_var_df: float, vol_var_scale: float, n_iter: int, burn: int,
-             thin: int, rng: np.random.Generator) -> SVPosterior:
-    """Gibbs sampler of the BVAR-SV on a balanced sample ``(T + p, n)``; see the module docstring."""
-    yt, x = lag_design(y, lags)
+_CHUNK_DOUBLES = 1 << 20  # pre-drawn random numbers held at once by the compiled sampler (8 MB)
+
+
+def _gibbs_reference(yt: np.ndarray, x: np.ndarray, b0: np.ndarray, inv_v0: np.ndarray,
+                     a_prior_var: float, vol_var_df: float, vol_var_scale: float,
+                     h1_mean: np.ndarray, coefs: np.ndarray, u: np.ndarray, a: np.ndarray,
+                     h: np.ndarray, phi: np.ndarray, slot: np.ndarray, keep: tuple,
+                     rng: np.random.Generator) -> None:
+    """The Gibbs iterations block by block with NumPy/SciPy (the obviously-correct reference)."""
     t, n = yt.shape
     k = x.shape[1]
-    b0, v0 = prior_mean_coef, prior_var_coef
-    inv_v0 = 1.0 / v0
+    keep_coefs, keep_a, keep_h, keep_phi = keep
+    for it in range(slot.shape[0]):
+        inv_lam = np.exp(-h)  # (T, n)
+        # 1. coefficients, equation by equation (corrected triangular algorithm)
+        draw_coefficients(yt, x, coefs, u, a, inv_lam, b0, inv_v0, rng.standard_normal((n, k)))
+        # 2. free elements of A, row by row
+        draw_impacts(u, a, inv_lam, a_prior_var, rng)
+        e = u @ a.T
+        # 3.-4. mixture indicators, then all log-volatility paths (Del Negro & Primiceri order)
+        ystar = np.log(e * e + _LOGSQ_OFFSET)
+        comp = _indicators_reference(ystar - h, rng.random((t, n)))
+        h = sample_log_volatility(ystar, _MIX_MEANS[comp], KSC_VARIANCES[comp], phi, h1_mean,
+                                  _H1_PRIOR_VAR, rng, reference=True)
+        # 5. log-volatility innovation variances
+        dh = np.diff(h, axis=0)
+        phi = (vol_var_df * vol_var_scale + (dh * dh).sum(axis=0)) / rng.chisquare(
+            vol_var_df + t - 1, size=n)
+        if slot[it] >= 0:
+            kept = slot[it]
+            keep_coefs[kept], keep_a[kept], keep_h[kept], keep_phi[kept] = coefs, a, h, phi
+
+
+def _gibbs_compiled(kernel, yt: np.ndarray, x: np.ndarray, b0: np.ndarray, inv_v0: np.ndarray,
+                    a_prior_var: float, vol_var_df: float, vol_var_scale: float,
+                    h1_mean: np.ndarray, coefs: np.ndarray, u: np.ndarray, a: np.ndarray,
+                    h: np.ndarray, phi: np.ndarray, slot: np.ndarray, keep: tuple,
+                    rng: np.random.Generator) -> None:
+    """The same iterations by the compiled kernel, fed chunk by chunk with pre-drawn random numbers."""
+    t, n = yt.shape
+    k = x.shape[1]
+    n_iter = slot.shape[0]
+    n_lin = n * k + n * (n - 1) // 2
+    chunk = max(1, min(n_iter, _CHUNK_DOUBLES // (n_lin + 2 * t * n + n)))
+    z_lin = np.empty((chunk, n_lin))
+    unif = np.empty((chunk, t, n))
+    z_vol = np.empty((chunk, n * t))
+    chi = np.empty((chunk, n))
+    chi_df = vol_var_df + t - 1
+    for start in range(0, n_iter, chunk):
+        m = min(chunk, n_iter - start)
+        # One iteration's draws in the reference's order (its normals for B and for A are one
+        # contiguous run of the stream), so a seed gives the same random numbers in both paths.
+        # The Python loop is over iterations, not cells: four generator calls each.
+        for j in range(m):
+            rng.standard_normal(out=z_lin[j])
+            rng.random(out=unif[j])
+            rng.standard_normal(out=z_vol[j])
+            chi[j] = rng.chisquare(chi_df, size=n)
+        block, at = kernel(yt, x, b0, inv_v0, a_prior_var, vol_var_df * vol_var_scale, h1_mean,
+                           _H1_PRIOR_VAR, coefs, u, a, h, phi, z_lin[:m], unif[:m], z_vol[:m],
+                           chi[:m], slot[start:start + m], _MIX_MEANS, _MIX_LOGW, KSC_VARIANCES,
+                           _LOGSQ_OFFSET, *keep)
+        if block:
+            what = "coefficient" if block == 1 else "impact (A)"
+            raise np.linalg.LinAlgError(f"{what} posterior precision is not positive definite "
+                                        f"at Gibbs iteration {start + at}")
+
+
+def sv_gibbs(y: np.ndarray, lags: int, prior_mean_coef: np.ndarray, prior_var_coef: np.ndarray,
+             a_prior_var: float, vol_var_df: float, vol_var_scale: float, n_iter: int, burn: int,
+             thin: int, rng: np.random.Generator, *, reference: bool = False) -> SVPosterior:
+    """Gibbs sampler of the BVAR-SV on a balanced sample ``(T + p, n)``; see the module docstring.
+
+    Parameters
+    ----------
+    y : ndarray (T + p, n)
+    lags : int
+    prior_mean_coef, prior_var_coef : ndarray (k, n)
+        Independent normal prior on the coefficients (``k = n p + 1``, intercept last).
+    a_prior_var, vol_var_df, vol_var_scale : float
+        See :class:`BayesianVARSV`.
+    n_iter, burn, thin : int
+    rng : numpy.random.Generator
+    reference : bool, default False
+        Run the blocks with NumPy/SciPy (:func:`draw_coefficients`, :func:`draw_impacts`, the
+        NumPy indicator draw, SciPy's banded Cholesky) instead of the compiled kernel. Both
+        consume the generator identically, so a seed gives the same draws up to rounding.
+
+    Returns
+    -------
+    SVPosterior
+
+    Raises
+    ------
+    numpy.linalg.LinAlgError
+        If a conditional posterior precision is not positive definite.
+
+    References
+    ----------
+    See the module docstring (Cogley & Sargent 2005; Carriero, Clark & Marcellino 2019;
+    Carriero, Chan, Clark & Marcellino 2022; Del Negro & Primiceri 2015).
+    """
+    yt, x = lag_design(y, lags)
+    yt, x = np.ascontiguousarray(yt, dtype=float), np.ascontiguousarray(x, dtype=float)
+    t, n = yt.shape
+    k = x.shape[1]
+    b0 = np.ascontiguousarray(prior_mean_coef, dtype=float)
+    inv_v0 = np.ascontiguousarray(1.0 / np.asarray(prior_var_coef, dtype=float))
     # start from the homoskedastic posterior mean of each equation (s_i^2 from AR(1) fits)
     s2 = ar1_scales(y) ** 2
     xtx, xty = x.T @ x, x.T @ yt
@@ -403,37 +704,23 @@ def sv_gibbs(y: np.ndarray, lags: int, prior_mean_coef: np.ndarray, prior_var_co
     cov = u.T @ u / t + 1e-10 * np.eye(n)
     lchol = np.linalg.cholesky(cov)
     d = np.diag(lchol)
-    a = np.linalg.inv(lchol / d)  # unit lower triangular
+    # unit lower triangular with exact zeros and ones (the compiled kernel skips the upper part)
+    a = sla.solve_triangular(lchol / d, np.eye(n), lower=True, unit_diagonal=True,
+                             check_finite=False)
     h1_mean = np.log(d ** 2)
     h = np.broadcast_to(h1_mean, (t, n)).copy()
-    phi = np.full(n, vol_var_scale)
+    phi = np.full(n, float(vol_var_scale))
     n_keep = (n_iter - burn) // thin
-    keep_coefs = np.empty((n_keep, k, n))
-    keep_a = np.empty((n_keep, n, n))
-    keep_h = np.empty((n_keep, t, n))
-    keep_phi = np.empty((n_keep, n))
-    kept = 0
-    indicators = _fast_kernels()["indicators"]
-    for it in range(n_iter):
-        inv_lam = np.exp(-h)  # (T, n)
-        # 1. coefficients, equation by equation (corrected triangular algorithm)
-        draw_coefficients(yt, x, coefs, u, a, inv_lam, b0, inv_v0, rng.standard_normal((n, k)))
-        # 2. free elements of A, row by row
-        draw_impacts(u, a, inv_lam, a_prior_var, rng)
-        e = u @ a.T
-        # 3.-4. mixture indicators, then all log-volatility paths (Del Negro & Primiceri order)
-        ystar = np.log(e * e + _LOGSQ_OFFSET)
-        comp = indicators(ystar - h, rng.random((t, n)))
-        h = sample_log_volatility(ystar, _MIX_MEANS[comp], KSC_VARIANCES[comp], phi, h1_mean,
-                                  _H1_PRIOR_VAR, rng)
-        # 5. log-volatility innovation variances
-        dh = np.diff(h, axis=0)
-        phi = (vol_var_df * vol_var_scale + (dh * dh).sum(axis=0)) / rng.chisquare(
-            vol_var_df + t - 1, size=n)
-        if it >= burn and (it - burn) % thin == 0 and kept < n_keep:
-            keep_coefs[kept], keep_a[kept], keep_h[kept], keep_phi[kept] = coefs, a, h, phi
-            kept += 1
-    return SVPosterior(keep_coefs, keep_a, keep_h, keep_phi)
+    keep = (np.empty((n_keep, k, n)), np.empty((n_keep, n, n)), np.empty((n_keep, t, n)),
+            np.empty((n_keep, n)))
+    # slot[it]: where iteration it is stored (burn, burn + thin, ...), -1 if it is not kept
+    slot = np.full(n_iter, -1, dtype=np.int64)
+    slot[burn + thin * np.arange(n_keep)] = np.arange(n_keep)
+    kernel = None if reference else _fast_kernels()["gibbs"]
+    run = _gibbs_reference if kernel is None else partial(_gibbs_compiled, kernel)
+    run(yt, x, b0, inv_v0, float(a_prior_var), float(vol_var_df), float(vol_var_scale), h1_mean,
+        coefs, u, a, h, phi, slot, keep, rng)
+    return SVPosterior(*keep)
 
 
 @register

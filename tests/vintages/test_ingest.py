@@ -20,6 +20,7 @@ Sources for the conventions checked here:
 from __future__ import annotations
 
 import hashlib
+import pickle
 from pathlib import Path
 
 import numpy as np
@@ -471,3 +472,20 @@ def test_unknown_layout_and_frequency_options(store, tmp_path):
     p = write(tmp_path, "a.csv", SEED_CSV)
     refused(store, p, line=None, field=None, says="expected one of ['long', 'triangle']", layout="wide")
     refused(store, p, line=None, field=None, says="expected one of ['M', 'Q']", freq="A")
+
+
+def test_byte_order_mark_and_crlf_line_endings(store, tmp_path):
+    """A UTF-8 byte-order mark and CRLF line ends (as spreadsheet programs write) keep header and lines right."""
+    text = "variable,period,release,value\r\ngdp,2020Q2,2020-07-30,1.0\r\ngdp,2020Q3,2020-10-30,x\r\n"
+    p = write(tmp_path, "excel.csv", "\ufeff".encode() + text.encode())
+    refused(store, p, line=3, field="value", says="is not a number")
+    ok = write(tmp_path, "excel_ok.csv", "\ufeff".encode() + text.replace(",x", ",2.0").encode())
+    assert store.append(read_releases(ok)).written == 2
+
+
+def test_input_error_survives_pickling():
+    """An InputError sent between processes keeps its message, file, line and field."""
+    err = InputError("value 'x' is not a number", file="a.csv", line=3, field="value")
+    back = pickle.loads(pickle.dumps(err))
+    assert str(back) == str(err) == "a.csv, line 3, field 'value': value 'x' is not a number"
+    assert (back.file, back.line, back.field) == ("a.csv", 3, "value")
