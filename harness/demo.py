@@ -104,19 +104,26 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
     if data_only:
         echo("stopped after the data (--data-only); run the backtest with: harness run " + str(spec_path))
         return paths
-    from harness.runner import run
-    from harness.spec import load_spec
+    paths.update(run_pipeline(spec_path, out, jobs=jobs, echo=echo))
+    echo(f"demo finished in {time.perf_counter() - t0:.1f}s")
+    echo(f"report: {paths['report']}")
+    return paths
 
+
+def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print) -> dict:
+    """spec → run (with progress) → scores → sensitivity → report; return the paths written."""
     from harness.evaluate import evaluate, save
     from harness.reporting import make_report
+    from harness.runner import run
     from harness.sensitivity import sensitivity
+    from harness.spec import load_spec
     from harness.textable import relative_text
 
     spec = load_spec(spec_path)
     echo(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast")
     res = run(spec, jobs=jobs)
     echo(res.summary())
-    paths["run"] = res.run_dir
+    paths = {"run": res.run_dir}
     t1 = time.perf_counter()
     ev = evaluate(res.run_dir)
     save(ev, res.run_dir / "scores")
@@ -128,8 +135,6 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
     sens.save(res.run_dir / "sensitivity")
     echo(sens.summary())
     echo(f"sensitivity ({time.perf_counter() - t2:.1f}s) in {res.run_dir / 'sensitivity'}")
-    rep = make_report(res.run_dir, out=out / "report", sensitivity=sens, evaluation=ev, echo=echo)
+    rep = make_report(res.run_dir, out=Path(out) / "report", sensitivity=sens, evaluation=ev, echo=echo)
     paths["report"] = rep["html"]
-    echo(f"demo finished in {time.perf_counter() - t0:.1f}s")
-    echo(f"report: {rep['html']}")
     return paths

@@ -176,4 +176,10 @@ def revisions_cmd(
     from vintages.store import VintageStore
 
     table = revisions_table(VintageStore(store).cube(), variable, transform=transform, frm=frm, to=to)
-    echo_table(table, fmt.value)
+    if fmt is TableFormat.csv:
+        echo_table(table, "csv")
+        return
+    typer.echo(f"Revisions of {variable} from '{frm}' to '{to}' (news vs noise: Mankiw & Shapiro 1986; "
+               "noise slope = revision on the later estimate, news slope = revision on the earlier one; "
+               "HAC standard errors)")
+    typer.echo(table.set_index("variable").T.to_string())

@@ -222,6 +222,16 @@ def _gibbs_loop(yt, x, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs
     comp = np.empty((t, n), dtype=np.int64)
     w = np.empty(t)
     v = np.empty(t)
+    # products x_tq x_td (d <= q), packed by rows, fixed across iterations
+    npk = k * (k + 1) // 2
+    xx = np.empty((t, npk))
+    for s in range(t):
+        p = 0
+        for q in range(k):
+            for d in range(q + 1):
+                xx[s, p] = x[s, q] * x[s, d]
+                p += 1
+    pk = np.empty(npk)
     prec = np.empty((k, k))
     g = np.empty(k)
     b = np.empty(k)
@@ -258,16 +268,20 @@ def _gibbs_loop(yt, x, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs
                 v[s] = vs
             for q in range(k):
                 g[q] = inv_v0[q, i] * b0[q, i]
-                for d in range(q + 1):
-                    prec[q, d] = 0.0
+            for p in range(npk):
+                pk[p] = 0.0
             for s in range(t):
+                ws = w[s]
+                vs = v[s]
                 for q in range(k):
-                    xq = x[s, q]
-                    g[q] += xq * v[s]
-                    xw = xq * w[s]
-                    for d in range(q + 1):
-                        prec[q, d] += xw * x[s, d]
+                    g[q] += x[s, q] * vs
+                for p in range(npk):  # contiguous: vectorises, unlike the triangular inner loop
+                    pk[p] += ws * xx[s, p]
+            p = 0
             for q in range(k):
+                for d in range(q + 1):
+                    prec[q, d] = pk[p]
+                    p += 1
                 prec[q, q] += inv_v0[q, i]
             # Cholesky K = L L' in the lower triangle, then L' b = L^{-1} g + z (mean plus noise)
             for q in range(k):
