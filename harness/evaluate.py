@@ -164,8 +164,11 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     sub = {k: tuple(v) for k, v in scoring.get("subperiods", {}).items()}
     fc["_row"] = np.arange(len(fc))
     long = assign_subperiods(fc, sub, reg)
-    fc["subperiods"] = long.groupby("_row", sort=True)["subperiod"].agg(lambda s: [str(x) for x in s]) \
-        .reindex(fc["_row"]).to_list()
+    rows_ = long["_row"].to_numpy()
+    order = np.argsort(rows_, kind="stable")
+    names_ = long["subperiod"].astype(str).to_numpy()[order]
+    cuts = np.searchsorted(rows_[order], np.arange(1, len(fc)))
+    fc["subperiods"] = [list(x) for x in np.split(names_, cuts)]
     fc = fc.drop(columns="_row")
     long = long.drop(columns="_row")
     score_cols = [c for c in scores if c != "pit"]
