@@ -16,11 +16,39 @@ from vintages.errors import (
     StoreNotFoundError,
     VintageError,
 )
+from vintages.calendar import check_origins, parse_schedule
+from vintages.infoset import (
+    InfoSet,
+    SeriesSpec,
+    Targets,
+    build_infoset,
+    build_infosets,
+    make_targets,
+    parse_truth,
+    truth_table,
+    truth_values,
+)
 from vintages.ingest import read_releases, validate_table
+from vintages.revisions import revision_stats, revisions_table
 from vintages.store import AppendResult, VintageStore, open_store
+from vintages.transforms import register_transform
 
 __all__ = [
     "AppendResult",
+    "InfoSet",
+    "SeriesSpec",
+    "Targets",
+    "build_infoset",
+    "build_infosets",
+    "check_origins",
+    "make_targets",
+    "parse_schedule",
+    "parse_truth",
+    "register_transform",
+    "revision_stats",
+    "revisions_table",
+    "truth_table",
+    "truth_values",
     "Cube",
     "InputError",
     "LookAheadError",

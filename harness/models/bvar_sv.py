@@ -202,156 +202,142 @@ def _indicators_loop(dev, u, means, logw, variances):  # compiled by numba when 
     return out
 
 
-def _gibbs_loop(yt, x, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs, u, a, h, phi,
-                z_lin, unif, z_vol, chi, slot, mix_means, mix_logw, mix_vars, logsq_offset,
+def _gibbs_loop(yt, x, xx, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs, u, a, h,
+                phi, z_lin, unif, z_vol, chi, slot, mix_means, mix_logw, mix_vars, logsq_offset,
                 keep_coefs, keep_a, keep_h, keep_phi):  # compiled by numba when available
     """Gibbs iterations, blocks 1-5 as in :func:`_gibbs_reference`, from pre-drawn random numbers.
 
-    The state ``coefs, u, a, h, phi`` is updated in place; iteration ``it`` uses ``z_lin[it]``
-    (``n k`` coefficient normals, then ``1 + ... + (n - 1)`` impact normals), ``unif[it]``,
-    ``z_vol[it]`` (equation-major) and ``chi[it]``, and is stored in the ``keep_*`` arrays at
-    ``slot[it]`` when that is not negative. Returns ``(0, 0)``, or ``(block, it)`` for the first
-    posterior precision that is not positive definite (block 1: coefficients, 2: impacts).
+    ``xx[t]`` holds the products ``x_tq x_td`` (``d <= q``) packed by rows. The state ``coefs, u,
+    a, h, phi`` is updated in place; iteration ``it`` uses ``z_lin[it]`` (``n k`` coefficient
+    normals, then ``1 + ... + (n - 1)`` impact normals), ``unif[it]``, ``z_vol[it]`` (equation
+    major) and ``chi[it]``, and is stored in the ``keep_*`` arrays at ``slot[it]`` unless that is
+    negative. Returns ``(0, 0)``, or ``(block, it)`` at the first posterior precision that is not
+    positive definite (block 1: coefficients, 2: impacts).
     """
     t, n = yt.shape
     k = x.shape[1]
     c = mix_means.shape[0]
     inv_lam = np.empty((t, n))
+    lam_t = np.empty((n, t))
+    w_t = np.empty((n, t))
     e = np.empty((t, n))
-    ystar = np.empty((t, n))
-    comp = np.empty((t, n), dtype=np.int64)
-    w = np.empty(t)
+    uu = np.empty((t, n * (n + 1) // 2))
     v = np.empty(t)
-    # products x_tq x_td (d <= q), packed by rows, fixed across iterations
-    npk = k * (k + 1) // 2
-    xx = np.empty((t, npk))
-    for s in range(t):
-        p = 0
-        for q in range(k):
-            for d in range(q + 1):
-                xx[s, p] = x[s, q] * x[s, d]
-                p += 1
-    pk = np.empty(npk)
-    prec = np.empty((k, k))
+    chol = np.empty((k, k))
     g = np.empty(k)
-    b = np.empty(k)
     lp = np.empty(c)
-    ld = np.empty(t)
-    ls = np.empty(t)
-    tv = np.empty(t)
-    td = np.empty(t)
-    tr = np.empty(t)
+    ystar = np.empty((t, n))
+    mm = np.empty((t, n))
+    po = np.empty((t, n))
+    ld = np.empty((t, n))
+    ls = np.empty((t, n))
+    tv = np.empty((t, n))
     for it in range(z_lin.shape[0]):
         for s in range(t):
             for j in range(n):
-                inv_lam[s, j] = np.exp(-h[s, j])
+                il = np.exp(-h[s, j])
+                inv_lam[s, j] = il
+                lam_t[j, s] = il
                 acc = 0.0
                 for m in range(j + 1):
                     acc += u[s, m] * a[j, m]
                 e[s, j] = acc
-        # 1. coefficients, equation by equation: e_j for j >= i become the partial residuals r_j,
-        # the weighted normal equations are accumulated, then e_j is restored with the new b_i
+        # Weights of X'WX per equation, sum_{j >= i} a_ji^2 / lambda_jt, depend on A and h only:
+        # all n precisions in one product (BLAS) before the sweep.
         for i in range(n):
             for s in range(t):
-                xb = 0.0
-                for q in range(k):
-                    xb += x[s, q] * coefs[q, i]
-                ws = 0.0
-                vs = 0.0
-                for j in range(i, n):
-                    aji = a[j, i]
-                    r = e[s, j] + xb * aji
-                    e[s, j] = r
-                    ws += inv_lam[s, j] * (aji * aji)
-                    vs += inv_lam[s, j] * r * aji
-                w[s] = ws
-                v[s] = vs
-            for q in range(k):
-                g[q] = inv_v0[q, i] * b0[q, i]
-            for p in range(npk):
-                pk[p] = 0.0
-            for s in range(t):
-                ws = w[s]
-                vs = v[s]
-                for q in range(k):
-                    g[q] += x[s, q] * vs
-                for p in range(npk):  # contiguous: vectorises, unlike the triangular inner loop
-                    pk[p] += ws * xx[s, p]
-            p = 0
-            for q in range(k):
-                for d in range(q + 1):
-                    prec[q, d] = pk[p]
-                    p += 1
-                prec[q, q] += inv_v0[q, i]
-            # Cholesky K = L L' in the lower triangle, then L' b = L^{-1} g + z (mean plus noise)
-            for q in range(k):
-                for d in range(q + 1):
-                    acc = prec[q, d]
-                    for m in range(d):
-                        acc -= prec[q, m] * prec[d, m]
-                    if d < q:
-                        prec[q, d] = acc / prec[d, d]
-                    elif acc > 0.0:
-                        prec[q, q] = np.sqrt(acc)
-                    else:  # also catches NaN
-                        return 1, it
-                acc = g[q]
-                for m in range(q):
-                    acc -= prec[q, m] * g[m]
-                g[q] = acc / prec[q, q]
-            for q in range(k):
-                g[q] += z_lin[it, i * k + q]
-            for q in range(k - 1, -1, -1):
-                acc = g[q]
-                for m in range(q + 1, k):
-                    acc -= prec[m, q] * b[m]
-                b[q] = acc / prec[q, q]
-            for q in range(k):
-                coefs[q, i] = b[q]
-            for s in range(t):
-                xb = 0.0
-                for q in range(k):
-                    xb += x[s, q] * b[q]
-                u[s, i] = yt[s, i] - xb
-                for j in range(i, n):
-                    e[s, j] -= xb * a[j, i]
-        # 2. free elements of A, row by row: u_i = -u_{<i}' a_i + e^{h_i/2} eps
-        off = n * k
-        for i in range(1, n):
-            for q in range(i):
                 acc = 0.0
+                for j in range(i, n):
+                    acc += inv_lam[s, j] * (a[j, i] * a[j, i])
+                w_t[i, s] = acc
+        prec_b = np.dot(w_t, xx)
+        prec_a = prec_b  # set after block 1 (u changes during it)
+        # Blocks 1 and 2 as one sequence of Gaussian draws N(K^{-1} g, K^{-1}): tasks 0..n-1 are
+        # the equations' coefficients, tasks n..2n-2 the rows 1..n-1 of A.
+        for task in range(2 * n - 1):
+            if task < n:
+                i = task
+                dim = k
+                zoff = i * k
+                # e_j for j >= i become the partial residuals r_j = e_j + a_ji x'b_i
                 for s in range(t):
-                    acc -= u[s, q] * inv_lam[s, i] * u[s, i]
-                g[q] = acc
-                for d in range(q + 1):
+                    xb = 0.0
+                    for q in range(k):
+                        xb += x[s, q] * coefs[q, i]
                     acc = 0.0
+                    for j in range(i, n):
+                        r = e[s, j] + xb * a[j, i]
+                        e[s, j] = r
+                        acc += inv_lam[s, j] * r * a[j, i]
+                    v[s] = acc
+                for q in range(k):
+                    g[q] = inv_v0[q, i] * b0[q, i]
+                for s in range(t):
+                    for q in range(k):
+                        g[q] += x[s, q] * v[s]
+                p = 0
+                for q in range(k):
+                    for d in range(q + 1):
+                        chol[d, q] = prec_b[i, p]
+                        p += 1
+                    chol[q, q] += inv_v0[q, i]
+            else:
+                i = task - n + 1
+                dim = i
+                zoff = n * k + i * (i - 1) // 2
+                if i == 1:  # u is final now: sum_t u_tq u_td / lambda_it for every row at once
                     for s in range(t):
-                        acc += u[s, q] * inv_lam[s, i] * u[s, d]
-                    prec[q, d] = acc
-                prec[q, q] += 1.0 / a_prior_var
-            for q in range(i):
-                for d in range(q + 1):
-                    acc = prec[q, d]
-                    for m in range(d):
-                        acc -= prec[q, m] * prec[d, m]
-                    if d < q:
-                        prec[q, d] = acc / prec[d, d]
-                    elif acc > 0.0:
-                        prec[q, q] = np.sqrt(acc)
-                    else:
-                        return 2, it
+                        p = 0
+                        for q in range(n):
+                            for d in range(q + 1):
+                                uu[s, p] = u[s, q] * u[s, d]
+                                p += 1
+                    prec_a = np.dot(lam_t, uu)
+                p = 0
+                for q in range(i):
+                    for d in range(q + 1):
+                        chol[d, q] = prec_a[i, p]
+                        p += 1
+                    chol[q, q] += 1.0 / a_prior_var
+                    g[q] = -prec_a[i, i * (i + 1) // 2 + q]  # regressors are -u_{<i}
+            # K = U'U by right-looking Cholesky in the upper triangle (contiguous inner loops),
+            # then U'g' = g, and U beta = g' + z gives the mean plus the noise in one solve
+            for j in range(dim):
+                piv = chol[j, j]
+                if not piv > 0.0:  # also catches NaN
+                    return (1 if task < n else 2), it
+                piv = np.sqrt(piv)
+                chol[j, j] = piv
+                for q in range(j + 1, dim):
+                    chol[j, q] /= piv
+                for r in range(j + 1, dim):
+                    f = chol[j, r]
+                    for q in range(r, dim):
+                        chol[r, q] -= f * chol[j, q]
+            for q in range(dim):
+                g[q] /= chol[q, q]
+                for r in range(q + 1, dim):
+                    g[r] -= chol[q, r] * g[q]
+            for q in range(dim):
+                g[q] += z_lin[it, zoff + q]
+            for q in range(dim - 1, -1, -1):
                 acc = g[q]
-                for m in range(q):
-                    acc -= prec[q, m] * g[m]
-                g[q] = acc / prec[q, q]
-            for q in range(i):
-                g[q] += z_lin[it, off + q]
-            for q in range(i - 1, -1, -1):
-                acc = g[q]
-                for m in range(q + 1, i):
-                    acc -= prec[m, q] * a[i, m]
-                a[i, q] = acc / prec[q, q]
-            off += i
+                for m in range(q + 1, dim):
+                    acc -= chol[q, m] * g[m]
+                g[q] = acc / chol[q, q]
+            if task < n:
+                for q in range(k):
+                    coefs[q, i] = g[q]
+                for s in range(t):
+                    xb = 0.0
+                    for q in range(k):
+                        xb += x[s, q] * g[q]
+                    u[s, i] = yt[s, i] - xb
+                    for j in range(i, n):
+                        e[s, j] -= xb * a[j, i]
+            else:
+                for q in range(i):
+                    a[i, q] = g[q]
         # 3. mixture indicators given e = A u (inverse CDF, as in _indicators_loop)
         for s in range(t):
             for j in range(n):
@@ -375,31 +361,38 @@ def _gibbs_loop(yt, x, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs
                 for q in range(c):
                     if lp[q] < thr:
                         kk += 1
-                comp[s, j] = min(kk, c - 1)
-        # 4. log-volatility paths: tridiagonal precision per equation (as in sample_log_volatility)
-        for j in range(n):
-            inv_phi = 1.0 / phi[j]
-            for s in range(t):
-                po = 1.0 / mix_vars[comp[s, j]]
+                kk = min(kk, c - 1)
+                mm[s, j] = mix_means[kk]
+                po[s, j] = 1.0 / mix_vars[kk]
+        # 4. log-volatility paths, tridiagonal precision per equation (as sample_log_volatility);
+        # the equations' recursions are interleaved (inner loop over j) for instruction-level
+        # parallelism, each being a serial chain over time
+        for s in range(t):
+            for j in range(n):
+                inv_phi = 1.0 / phi[j]
                 if s == 0:
                     dg = inv_phi + 1.0 / h1_var if t > 1 else 1.0 / h1_var
                 elif s == t - 1:
                     dg = inv_phi
                 else:
                     dg = 2.0 * inv_phi
-                td[s] = dg + po
-                tr[s] = (ystar[s, j] - mix_means[comp[s, j]]) * po
-            tr[0] += h1_mean[j] / h1_var
-            ld[0] = np.sqrt(td[0])
-            tv[0] = tr[0] / ld[0]
-            for s in range(1, t):
-                ls[s - 1] = -inv_phi / ld[s - 1]
-                ld[s] = np.sqrt(td[s] - ls[s - 1] * ls[s - 1])
-                tv[s] = (tr[s] - ls[s - 1] * tv[s - 1]) / ld[s]
-            h[t - 1, j] = (tv[t - 1] + z_vol[it, j * t + t - 1]) / ld[t - 1]
-            for s in range(t - 2, -1, -1):
-                h[s, j] = (tv[s] + z_vol[it, j * t + s] - ls[s] * h[s + 1, j]) / ld[s]
-            # 5. log-volatility innovation variance (scaled inverse chi-square)
+                dg += po[s, j]
+                rs = (ystar[s, j] - mm[s, j]) * po[s, j]
+                if s == 0:
+                    rs += h1_mean[j] / h1_var
+                    ld[0, j] = np.sqrt(dg)
+                    tv[0, j] = rs / ld[0, j]
+                else:
+                    ls[s - 1, j] = -inv_phi / ld[s - 1, j]
+                    ld[s, j] = np.sqrt(dg - ls[s - 1, j] * ls[s - 1, j])
+                    tv[s, j] = (rs - ls[s - 1, j] * tv[s - 1, j]) / ld[s, j]
+        for j in range(n):
+            h[t - 1, j] = (tv[t - 1, j] + z_vol[it, j * t + t - 1]) / ld[t - 1, j]
+        for s in range(t - 2, -1, -1):
+            for j in range(n):
+                h[s, j] = (tv[s, j] + z_vol[it, j * t + s] - ls[s, j] * h[s + 1, j]) / ld[s, j]
+        # 5. log-volatility innovation variances (scaled inverse chi-square)
+        for j in range(n):
             sse = 0.0
             for s in range(t - 1):
                 dh = h[s + 1, j] - h[s, j]
@@ -647,6 +640,8 @@ def _gibbs_compiled(kernel, yt: np.ndarray, x: np.ndarray, b0: np.ndarray, inv_v
     z_vol = np.empty((chunk, n * t))
     chi = np.empty((chunk, n))
     chi_df = vol_var_df + t - 1
+    lo, hi = np.tril_indices(k)
+    xx = x[:, lo] * x[:, hi]  # x_tq x_td for d <= q, packed by rows
     for start in range(0, n_iter, chunk):
         m = min(chunk, n_iter - start)
         # One iteration's draws in the reference's order (its normals for B and for A are one
@@ -657,7 +652,7 @@ def _gibbs_compiled(kernel, yt: np.ndarray, x: np.ndarray, b0: np.ndarray, inv_v
             rng.random(out=unif[j])
             rng.standard_normal(out=z_vol[j])
             chi[j] = rng.chisquare(chi_df, size=n)
-        block, at = kernel(yt, x, b0, inv_v0, a_prior_var, vol_var_df * vol_var_scale, h1_mean,
+        block, at = kernel(yt, x, xx, b0, inv_v0, a_prior_var, vol_var_df * vol_var_scale, h1_mean,
                            _H1_PRIOR_VAR, coefs, u, a, h, phi, z_lin[:m], unif[:m], z_vol[:m],
                            chi[:m], slot[start:start + m], _MIX_MEANS, _MIX_LOGW, KSC_VARIANCES,
                            _LOGSQ_OFFSET, *keep)
