@@ -33,10 +33,9 @@ from pathlib import Path
 
 import numpy as np
 
-from harness.progress import Progress
-
 from harness.errors import TaskOutputError
 from harness.ledger import assemble, failure_path, task_path, write_failure, write_task
+from harness.progress import Progress
 from harness.spec import Spec
 
 BACKENDS = ("dask", "loky", "sequential", "threading")
@@ -80,11 +79,11 @@ class Plan:
             f"mode        {s.mode}; ragged edge policy {s.policy}; panel frequency {s.freq}",
             f"origins     {len(self.origins)}: {self.origins[0]} … {self.origins[-1]}" if len(self.origins) else
             "origins     none",
-            f"variables   " + ", ".join(f"{k} ({v['transform']}{', ' + v['convert'] if 'convert' in v else ''})"
+            "variables   " + ", ".join(f"{k} ({v['transform']}{', ' + v['convert'] if 'convert' in v else ''})"
                                         for k, v in s.variables.items()),
             f"targets     {', '.join(s.targets)} at horizons {s.horizons[0]}…{s.horizons[-1]}"
             f" (h<0 backcast, 0 nowcast, >0 forecast)",
-            f"models      " + "; ".join(f"{m.name} = {m.type} {json.dumps(m.params) if m.params else ''}".strip()
+            "models      " + "; ".join(f"{m.name} = {m.type} {json.dumps(m.params) if m.params else ''}".strip()
                                         for m in s.models),
             f"draws       {s.draws} per forecast; seed {s.seed}",
             f"tasks       {len(self.tasks)} ({len(s.models)} models × {len(self.origins)} origins): "

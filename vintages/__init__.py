@@ -6,6 +6,7 @@ release, vectorised as-of), :func:`read_releases` (validated readers).
 
 from __future__ import annotations
 
+from vintages.calendar import check_origins, parse_schedule
 from vintages.cube import Cube, Vintage
 from vintages.errors import (
     InputError,
@@ -16,7 +17,6 @@ from vintages.errors import (
     StoreNotFoundError,
     VintageError,
 )
-from vintages.calendar import check_origins, parse_schedule
 from vintages.infoset import (
     InfoSet,
     SeriesSpec,

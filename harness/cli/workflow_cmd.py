@@ -8,7 +8,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import fail, friendly
+from harness.cli._common import friendly
 
 
 class Backend(str, Enum):
