@@ -17,6 +17,7 @@ Conventions
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -51,7 +52,7 @@ class FreqCube:
         known[idx < 0] = np.nan
         self.known = known
 
-    @property
+    @cached_property
     def period_index(self) -> pd.PeriodIndex:
         return period_index(self.periods, self.freq)
 
@@ -86,41 +87,56 @@ class FreqCube:
 
 
 class Vintage:
-    """What was known on one day: per frequency, a DataArray (variable, period).
+    """What was known on one day: per frequency, values (variable, period) and their release dates.
 
-    Each array carries a ``release_date`` coordinate: the release each value came from.
+    A light view: the numbers are plain arrays sliced from the cube; :attr:`arrays` builds the
+    xarray form (a DataArray per frequency with a ``release_date`` coordinate) on first use.
     """
 
-    def __init__(self, date, arrays: dict[str, xr.DataArray]):
+    def __init__(self, date, parts: dict[str, tuple[FreqCube, np.ndarray, np.ndarray]]):
         self.date = _as_day(date)
-        self.arrays = arrays
+        self._parts = parts
+        self._arrays: dict[str, xr.DataArray] | None = None
+
+    @property
+    def arrays(self) -> dict[str, xr.DataArray]:
+        """Per frequency, a DataArray (variable, period) with a ``release_date`` coordinate."""
+        if self._arrays is None:
+            self._arrays = {f: fc.to_array(v, r, "value") for f, (fc, v, r) in self._parts.items()}
+        return self._arrays
 
     def __getitem__(self, variable: str) -> pd.Series:
         """The variable's series as known that day (PeriodIndex), without leading/trailing gaps."""
-        for da in self.arrays.values():
-            if variable in da["variable"].values:
-                s = da.sel(variable=variable).to_series()
-                valid = s.notna().to_numpy()
-                if not valid.any():
-                    return s.iloc[0:0]
-                lo, hi = np.flatnonzero(valid)[[0, -1]]
-                return s.iloc[lo:hi + 1]
+        for fc, vals, _ in self._parts.values():
+            i = np.searchsorted(fc.variables, variable)
+            if i < len(fc.variables) and fc.variables[i] == variable:
+                x = vals[i]
+                ok = ~np.isnan(x)
+                if not ok.any():
+                    return pd.Series([], index=fc.period_index[:0], dtype=np.float64, name="value")
+                lo, hi = np.flatnonzero(ok)[[0, -1]]
+                return pd.Series(x[lo:hi + 1], index=fc.period_index[lo:hi + 1], name="value")
         raise KeyError(f"unknown variable {variable!r}; known: {sorted(self.variables)}")
 
     @property
     def variables(self) -> list[str]:
-        return [str(v) for da in self.arrays.values() for v in da["variable"].values]
+        return [str(v) for fc, _, _ in self._parts.values() for v in fc.variables]
 
     def to_frame(self) -> pd.DataFrame:
         """Long table: variable, period (label), value, release (date of the release it came from)."""
+        from vintages.periods import format_periods
+
         frames = []
-        for da in self.arrays.values():
-            v = np.repeat(da["variable"].values, da.sizes["period"])
-            p = np.tile(da["period"].to_index().astype(str), da.sizes["variable"])
-            x = da.values.ravel()
-            r = da["release_date"].values.ravel()
+        for fc, vals, rel in self._parts.values():
+            nv, npd = vals.shape
+            if nv * npd == 0:
+                continue
+            v = np.repeat(fc.variables, npd)
+            p = np.tile(format_periods(fc.periods, fc.freq), nv)
+            x = vals.ravel()
             ok = ~np.isnan(x)
-            frames.append(pd.DataFrame({"variable": v[ok], "period": p[ok], "value": x[ok], "release": r[ok]}))
+            frames.append(pd.DataFrame({"variable": v[ok], "period": p[ok], "value": x[ok],
+                                        "release": rel.ravel()[ok]}))
         if not frames:
             return pd.DataFrame(columns=["variable", "period", "value", "release"])
         return pd.concat(frames, ignore_index=True)
@@ -211,7 +227,7 @@ class Cube:
         arrays = {}
         for f, fc in self.parts.items():
             vals, rel = fc.asof_values([d])
-            arrays[f] = fc.to_array(vals[0], rel[0], "value")
+            arrays[f] = (fc, vals[0], rel[0])
         return Vintage(d, arrays)
 
     def estimate(self, k: int, freq: str) -> xr.DataArray:
