@@ -106,7 +106,7 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
         return paths
     paths.update(run_pipeline(spec_path, out, jobs=jobs, echo=echo))
     echo(f"demo finished in {time.perf_counter() - t0:.1f}s")
-    echo(f"report: {paths['report']}")
+    echo(f"report: {Path(paths['report']).resolve()}")
     return paths
 
 

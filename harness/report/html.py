@@ -335,6 +335,7 @@ def _summary(rep: _Report, ev, variables) -> str:
             _p("Each verdict is derived from the tables below: lowest mean CRPS over the full sample per "
                "horizon, HLN-DM tests against the benchmark, recession sub-sample, model confidence set.",
                "note"),
+            _p("Caution: " + CAUTION, "note"),
             "<h3>What was run</h3>", rep.table(FrameTable("run_summary", "What was run", _run_frame(ev)))]
     versions = (ev.manifest or {}).get("versions") or {}
     if versions:
