@@ -279,6 +279,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
         raise ValueError(f"unknown backend {backend!r}; expected one of {', '.join(sorted(BACKENDS))}")
     say = log or (lambda msg: print(msg, file=sys.stderr))
     t_start = time.perf_counter()
+    given_plan = plan is not None
     plan = plan or make_plan(spec)
     out = spec.out
     cache = spec.cache_dir
@@ -319,7 +320,9 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
                 for r in ordered if r.get("status") != "ok"]
     computed = sum(1 for r in ordered if not r.get("cached"))
     t_end = time.perf_counter()
-    timings = dict(plan.timings, dispatch=t_assemble - t_run, assemble=t_end - t_assemble, total=t_end - t_start)
+    plan_time = sum(plan.timings.values()) if given_plan else 0.0  # else already inside t_start..t_end
+    timings = dict(plan.timings, dispatch=t_assemble - t_run, assemble=t_end - t_assemble,
+                   total=t_end - t_start + plan_time)
     manifest = {
         "name": spec.name,
         "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),

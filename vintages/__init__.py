@@ -29,7 +29,6 @@ from vintages.infoset import (
     truth_values,
 )
 from vintages.ingest import read_releases, validate_table
-from vintages.revisions import revision_stats, revisions_table
 from vintages.store import AppendResult, VintageStore, open_store
 from vintages.transforms import register_transform
 
@@ -63,3 +62,12 @@ __all__ = [
     "read_releases",
     "validate_table",
 ]
+
+
+def __getattr__(name: str):
+    # the revision analysis needs scipy.stats (slow to import): load it on first use
+    if name in ("revision_stats", "revisions_table"):
+        from vintages import revisions
+
+        return getattr(revisions, name)
+    raise AttributeError(f"module 'vintages' has no attribute {name!r}")

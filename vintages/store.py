@@ -87,7 +87,7 @@ def _fsync_dir(path: Path) -> None:
         os.close(fd)
 
 
-def _atomic_write_bytes(path: Path, data: bytes) -> None:
+def atomic_write_bytes(path: Path, data: bytes) -> None:
     """Write to a temporary file in the same directory, fsync, rename over ``path``, fsync the dir."""
     fd, tmp = tempfile.mkstemp(prefix=_TMP_PREFIX, dir=path.parent)
     try:
@@ -166,7 +166,7 @@ class VintageStore:
         # merely by trying (a refused append leaves every file byte-identical).
         (p / ".lock").touch()
         manifest = {"format": FORMAT, "created": _now(), "variables": {}, "batches": [], "audit": []}
-        _atomic_write_bytes(p / "manifest.json", _dump(manifest))
+        atomic_write_bytes(p / "manifest.json", _dump(manifest))
         return cls(p)
 
     def manifest(self) -> dict:
@@ -297,7 +297,7 @@ class VintageStore:
                 m["variables"][name]["units"] = units
             if description is not None:
                 m["variables"][name]["description"] = description
-            _atomic_write_bytes(self.path / "manifest.json", _dump(m))
+            atomic_write_bytes(self.path / "manifest.json", _dump(m))
 
     def append(self, releases: pd.DataFrame, variables: dict[str, dict] | None = None, *,
                supersede: bool = False, source: str | None = None, reason: str | None = None,
@@ -381,7 +381,7 @@ class VintageStore:
             rel = f"log/{seq:06d}-{digest[:12]}.parquet"
             if _crash_hook:
                 _crash_hook("before-batch")
-            _atomic_write_bytes(self.path / rel, data)
+            atomic_write_bytes(self.path / rel, data)
             if _crash_hook:
                 _crash_hook("before-manifest")
             m["variables"].update(new_vars)
@@ -396,7 +396,7 @@ class VintageStore:
                     for v, p, r, o, x in zip(sup["variable"].tolist(), sup["period"].tolist(),
                                              sup["release"].to_numpy().astype("datetime64[D]"),
                                              old_value[conflict], sup["value"].tolist(), strict=True))
-            _atomic_write_bytes(self.path / "manifest.json", _dump(m))
+            atomic_write_bytes(self.path / "manifest.json", _dump(m))
             if _crash_hook:
                 _crash_hook("after-manifest")
             return AppendResult(len(fresh), int(same.sum()), int(conflict.sum()), rel)
@@ -493,4 +493,4 @@ def open_store(path) -> VintageStore:
     return VintageStore(path)
 
 
-__all__ = ["VintageStore", "AppendResult", "open_store", "sha256_file", "InputError"]
+__all__ = ["atomic_write_bytes", "VintageStore", "AppendResult", "open_store", "sha256_file", "InputError"]

@@ -79,6 +79,11 @@ def score_cmd(
     ev = evaluate(run_dir, truth)
     typer.echo(relative_text(ev, score))
     typer.echo(f"sub-periods: recession/expansion from {ev.chronology_source}")
+    if "Harding" in ev.chronology_source and len(ev.turning_points):
+        typer.echo("dated turning points (peak → trough):")
+        for _, r in ev.turning_points.iterrows():
+            typer.echo(f"  {r['peak'] if r['peak'] == r['peak'] else '…'} → "
+                       f"{r['trough'] if r['trough'] == r['trough'] else '(open)'}")
     if len(ev.missing):
         typer.echo(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
     if out is not None:

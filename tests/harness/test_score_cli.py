@@ -1,0 +1,38 @@
+"""``harness score`` on a run: relative-score tables, tests, sub-periods dated when no chronology is given."""
+
+from __future__ import annotations
+
+import pandas as pd
+from typer.testing import CliRunner
+
+from harness.cli import app
+from harness.evaluate import evaluate
+from harness.runner import run
+from harness.spec import load_spec
+from tests.harness.conftest import write_spec
+
+
+def test_score_prints_tables_and_dates_turning_points(tmp_path, small_store):
+    """Without a chronology file, recessions are dated by Harding–Pagan and the dates are printed."""
+    spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
+    run(spec, jobs=1, progress=False)
+    out_csv = tmp_path / "scores.csv"
+    res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "latest", "--out", str(out_csv)])
+    assert res.exit_code == 0, res.output
+    assert "Relative CRPS" in res.output and "truth 'latest'" in res.output
+    assert "Harding" in res.output and "dated turning points" in res.output
+    scores = pd.read_csv(out_csv)
+    assert {"crps", "pit", "truth", "subperiods"} <= set(scores.columns)
+    # the CSV holds exactly the evaluation's per-forecast CRPS
+    ev = evaluate(spec.out, "latest")
+    assert len(scores) == len(ev.forecasts)
+    assert abs(scores["crps"].sum() - ev.forecasts["crps"].sum()) < 1e-9
+
+
+def test_score_refuses_an_unknown_truth(tmp_path, small_store):
+    """A malformed truth rule is a one-line error with exit code 1, listing the valid forms."""
+    spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
+    run(spec, jobs=1, progress=False)
+    res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "final"])
+    assert res.exit_code == 1
+    assert res.output.startswith("error:") and "first" in res.output and "latest" in res.output
