@@ -201,7 +201,40 @@ def load_spec(path: str | Path, *, out: str | Path | None = None, check_store: b
         raise SpecError(f"{path}: spec file not found") from None
     except tomllib.TOMLDecodeError as exc:
         raise SpecError(f"{path}: not valid TOML: {exc}") from None
-    return parse_spec(raw, path, out=out, check_store=check_store)
+    try:
+        return parse_spec(raw, path, out=out, check_store=check_store)
+    except SpecError as exc:
+        line = _locate(path.read_text(), str(exc)[len(str(path)) + 2:])
+        if line is None:
+            raise
+        raise SpecError(f"{path}, line {line}: {str(exc)[len(str(path)) + 2:]}") from None
+
+
+def _locate(text: str, message: str) -> int | None:
+    """Best-effort line number of the key an error message names (``[table] key`` or ``unknown key 'k'``)."""
+    m = re.match(r"\[([A-Za-z0-9_.\-]+)\]\s*([A-Za-z0-9_]+)?", message)
+    if not m:
+        return None
+    table, key = m.group(1), m.group(2)
+    k = re.search(r"unknown key '([^']+)'", message)
+    if k:
+        key = k.group(1)
+    lines = text.splitlines()
+    start = None
+    for i, ln in enumerate(lines):
+        if re.match(rf"^\s*\[{re.escape(table)}\]\s*(#.*)?$", ln):
+            start = i
+            break
+    if start is None:
+        return None
+    if not key:
+        return start + 1
+    for j in range(start + 1, len(lines)):
+        if re.match(r"^\s*\[", lines[j]):
+            break
+        if re.match(rf"^\s*{re.escape(key)}\s*=", lines[j]):
+            return j + 1
+    return start + 1
 
 
 def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store: bool = True) -> Spec:
@@ -307,6 +340,12 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
             cls = get_model_class(m["type"])
         except (ValueError, ImportError, AttributeError) as exc:
             raise _err(path, f"{where} type", str(exc)) from None
+        allowed = _init_params(cls)
+        if allowed is not None:
+            for k in params:
+                if k not in allowed:
+                    raise _err(path, where, f"unknown key {k!r}; parameters of {m['type']}: "
+                               f"{', '.join(sorted(allowed)) or '(none)'}")
         try:
             cls(**params)
         except TypeError as exc:
@@ -364,6 +403,19 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
     return Spec(path=path, store=store, out=out_dir, seed=seed, draws=draws, freq=freq, policy=policy, mode=mode,
                 origins=origins, variables=vspec, targets=tuple(tv), horizons=horizons, models=tuple(models),
                 scoring=scoring, raw=raw, cache=cache, name=name)
+
+
+def _init_params(cls) -> set[str] | None:
+    """Keyword parameters a model class accepts (None when it takes ``**kwargs``)."""
+    import inspect
+
+    try:
+        sig = inspect.signature(cls.__init__)
+    except (TypeError, ValueError):
+        return None
+    if any(p.kind is p.VAR_KEYWORD for p in sig.parameters.values()):
+        return None
+    return {n for n, p in sig.parameters.items() if n != "self" and p.kind is not p.VAR_POSITIONAL}
 
 
 def _accepts_validate_only(fn) -> bool:

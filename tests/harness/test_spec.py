@@ -60,3 +60,13 @@ def test_bad_spec_is_refused_with_its_key(tmp_path, good, label, edit, message):
         load_spec(p)
     assert message in str(exc.value)
     assert str(p) in str(exc.value)
+
+
+def test_error_names_the_line_of_the_offending_key(tmp_path, good):
+    """A bad key's error carries the line it stands on (the TOML reader gives none)."""
+    text = good.replace("max_lags = 2", "max_lagz = 2")
+    p = _write(tmp_path, text)
+    line = 1 + text.splitlines().index("max_lagz = 2")
+    with pytest.raises(SpecError) as exc:
+        load_spec(p)
+    assert f"{p}, line {line}:" in str(exc.value) and "unknown key 'max_lagz'" in str(exc.value)
