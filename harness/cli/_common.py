@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import os
 import sys
 
 import typer
@@ -30,9 +31,11 @@ def friendly(func):
             typer.echo("interrupted", err=True)
             raise typer.Exit(code=130) from None
         except (ValueError, KeyError, FileNotFoundError, FileExistsError, RuntimeError, OSError) as exc:
-            msg = exc.args[0] if isinstance(exc, KeyError) and exc.args else str(exc)
-            typer.echo(f"error: {msg}".splitlines()[0] if "\n" in str(msg) and len(str(msg)) > 400
-                       else f"error: {msg}", err=True)
+            if os.environ.get("HARNESS_DEBUG"):
+                raise  # HARNESS_DEBUG=1 shows the full traceback
+            msg = str(exc.args[0]) if isinstance(exc, KeyError) and exc.args else str(exc)
+            # one line: the first line of the message carries what failed and where
+            typer.echo(f"error: {msg.splitlines()[0] if msg else type(exc).__name__}", err=True)
             raise typer.Exit(code=DATA_ERROR) from None
 
     return wrapper
