@@ -81,16 +81,10 @@ def write_demo_data(out: Path, *, small: bool = False) -> Path:
         shutil.rmtree(out / "store")
     out.mkdir(parents=True, exist_ok=True)
     data = simulate()
-    build_demo_store(out / "store", data=data) if _accepts(build_demo_store, "data") else build_demo_store(out / "store")
+    build_demo_store(out / "store", data=data)
     write_chronology(out / "chronology.csv")
     (out / "spec.toml").write_text(demo_spec_text(small=small))
     return out / "spec.toml"
-
-
-def _accepts(fn, name: str) -> bool:
-    import inspect
-
-    return name in inspect.signature(fn).parameters
 
 
 def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: int | None = None, echo=print) -> dict:

@@ -18,9 +18,6 @@ import pandas as pd
 
 from harness.ledger import Ledger, read_ledger
 
-# Scores where lower is better (ratios to the benchmark make sense for these).
-LOSSES = ("crps", "crps_centre", "crps_tails", "crps_left", "crps_right", "log_score", "se_mean", "ae_mean",
-          "se_median", "ae_median")
 HEADLINE = ("crps", "se_mean", "log_score")
 
 
@@ -104,7 +101,7 @@ def regimes_for(manifest: dict, cube, periods: pd.PeriodIndex) -> tuple[pd.Serie
     return regimes(tp, periods if freq == "Q" else periods.asfreq("Q")), src, tp
 
 
-def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, dm_scores=HEADLINE,
+def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, cube=None, dm_scores=HEADLINE,
              fluctuation_window: float = 0.3, tests: bool = True) -> Evaluation:
     """Score a run against one truth rule.
 
@@ -117,6 +114,9 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
         spec's ``[scoring] truth``.
     store : VintageStore, optional
         Default: the store the run names.
+    cube : Cube, optional
+        The store's cube, when the caller already built it (scoring one run under several
+        truths needs it once).
     tests : bool
         Run the comparison and calibration tests (False: scores and tables only).
 
@@ -136,8 +136,9 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     parse_truth(truth)
     benchmark = scoring.get("benchmark", man["models"][0])
     freq = man.get("freq", "Q")
-    store = store or VintageStore(man["store"])
-    cube = store.cube(variables=list(man["variables"]))
+    if cube is None:
+        store = store or VintageStore(man["store"])
+        cube = store.cube(variables=list(man["variables"]))
 
     frame = ledger.frame()
     periods_by_var = {v: sorted(set(frame.loc[frame["variable"] == v, "target_period"]),
@@ -189,7 +190,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
                       chron_src, tps, names, man)
 
 
-def _steps(h) -> int:
+def steps_ahead(h) -> int:
     """Steps ahead for the tests' HAC lags: h + 1 periods separate origin and target at horizon h ≥ 0
     (the origin's own period is not yet observed); backcasts count as one step."""
     return max(int(h) + 1, 1)
@@ -233,7 +234,7 @@ def _dm_tests(fc, benchmark, dm_scores, compare) -> pd.DataFrame:
                     row = dict(model=model, variable=var, horizon=h, subperiod=sname, score=score, n=n,
                                stat=np.nan, pvalue=np.nan, mean_diff=np.nan)
                     if n >= 4:
-                        r = compare.diebold_mariano(arr[sel, j], arr[sel, jb], h=_steps(h))
+                        r = compare.diebold_mariano(arr[sel, j], arr[sel, jb], h=steps_ahead(h))
                         row.update(n=r.n, stat=r.stat, pvalue=r.pvalue, mean_diff=r.mean_diff)
                     rows.append(row)
     return pd.DataFrame(rows)
@@ -245,7 +246,7 @@ def _mcs(fc, compare, score="crps", alpha=0.10) -> pd.DataFrame:
         wide = g.pivot_table(index="origin", columns="model", values=score).dropna()
         if wide.shape[0] < 10 or wide.shape[1] < 2:
             continue
-        res = compare.model_confidence_set(wide, alpha=alpha, block_len=max(_steps(h), 2), n_boot=1000,
+        res = compare.model_confidence_set(wide, alpha=alpha, block_len=max(steps_ahead(h), 2), n_boot=1000,
                                            seed=20261201)
         pvals = np.asarray(res.pvalues)
         for j, m in enumerate(wide.columns):
@@ -274,11 +275,10 @@ def _calibration(fc, scores, compare) -> pd.DataFrame:
                 row[f"{c}_christoffersen_p"] = ch.p_cc
         if len(pit) >= 8:
             row["berkowitz_p"] = compare.berkowitz(pit).pvalue
-            rs = compare.rossi_sekhposyan(pit, h=_steps(h), n_boot=499, seed=20261201)
+            rs = compare.rossi_sekhposyan(pit, h=steps_ahead(h), n_boot=499, seed=20261201)
             row["rs_p"] = rs.ks_pvalue
             row["rs_cvm_p"] = rs.cvm_pvalue
-        hist = compare.pit_histogram(pit, bins=10) if len(pit) else np.zeros(10)
-        row["pit_hist"] = ";".join(str(int(x)) for x in np.asarray(getattr(hist, "counts", hist)).ravel()[:10])
+        row["pit_hist"] = ";".join(str(int(x)) for x in compare.pit_histogram(pit, bins=10))
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -296,7 +296,7 @@ def _fluctuation(fc, benchmark, compare, mu) -> pd.DataFrame:
             ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
             if ok.sum() < 20:
                 continue
-            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.05, h=_steps(h))
+            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.05, h=steps_ahead(h))
             ends = tps[ok][np.asarray(r.window_end, dtype=int)]
             for t, val in zip(ends, r.path, strict=True):
                 rows.append(dict(model=model, variable=var, horizon=h, target_period=t, stat=float(val),
@@ -304,14 +304,21 @@ def _fluctuation(fc, benchmark, compare, mu) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def write_forecasts(ev: Evaluation, path: str | Path) -> Path:
+    """Write the per-forecast scores as CSV (sub-periods joined by ';'), atomically."""
+    path = Path(path)
+    f = ev.forecasts.assign(subperiods=ev.forecasts["subperiods"].map(";".join))
+    tmp = path.with_name(path.name + ".tmp")
+    f.to_csv(tmp, index=False)
+    tmp.replace(path)
+    return path
+
+
 def save(ev: Evaluation, path: str | Path) -> Path:
     """Write the evaluation's tables as CSV files under ``path`` (a directory)."""
     path = Path(path)
     path.mkdir(parents=True, exist_ok=True)
-    cols = [c for c in ev.forecasts.columns if c != "subperiods"]
-    f = ev.forecasts[cols].copy()
-    f["subperiods"] = ev.forecasts["subperiods"].map(lambda s: ";".join(s))
-    f.to_csv(path / "forecast_scores.csv", index=False)
+    write_forecasts(ev, path / "forecast_scores.csv")
     for name in ("table", "relative", "tests", "mcs", "calibration", "fluctuation"):
         getattr(ev, name).to_csv(path / f"{name}.csv", index=False)
     (path / "evaluation.json").write_text(json.dumps({"truth": ev.truth, "benchmark": ev.benchmark,

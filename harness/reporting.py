@@ -37,11 +37,12 @@ def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, 
     run_dir = Path(run_dir)
     ledger = read_ledger(run_dir)
     ev = evaluation or evaluate(ledger, truth)
-    fan = {}
-    for t in ("first", "latest"):
-        fan[t] = ev if ev.truth == t else evaluate(ledger, t)
     if sensitivity is None:
         sensitivity = load_sensitivity(run_dir / "sensitivity")
+    # fan charts need the outcomes under the first and latest truths: reuse what the
+    # sensitivity check already scored
+    known = dict(getattr(sensitivity, "evaluations", None) or {}, **{ev.truth: ev})
+    fan = {t: known[t] if t in known else evaluate(ledger, t, tests=False) for t in ("first", "latest")}
     earlier = evaluate(Path(since), ev.truth) if since else None
     out = Path(out) if out else run_dir / "report"
     paths = build_report(ev, out, sensitivity=sensitivity, ledger=ledger, fan_truths=fan, since=earlier)

@@ -362,17 +362,14 @@ def _dispatch(plan: Plan, todo: list[Task], *, jobs, backend, scheduler):
     from joblib import Parallel, delayed, parallel_config
 
     spec = plan.spec
-    calls = (
-        delayed(_execute)(plan.models[t.model], plan.infos[t.index], plan.targets[t.index], spec.draws, spec.seed,
-                          t.seed_key, t.key, str(spec.cache_dir), {"model": t.model, "origin": str(t.origin)})
-        for t in todo
-    )
+    args = [(plan.models[t.model], plan.infos[t.index], plan.targets[t.index], spec.draws, spec.seed, t.seed_key,
+             t.key, str(spec.cache_dir), {"model": t.model, "origin": str(t.origin)}) for t in todo]
     n_jobs = jobs or os.cpu_count() or 1
     if backend == "sequential":
-        for t in todo:
-            yield _execute(plan.models[t.model], plan.infos[t.index], plan.targets[t.index], spec.draws, spec.seed,
-                           t.seed_key, t.key, str(spec.cache_dir), {"model": t.model, "origin": str(t.origin)})
+        for a in args:
+            yield _execute(*a)
         return
+    calls = (delayed(_execute)(*a) for a in args)
     if backend == "dask":
         from dask.distributed import Client, LocalCluster
 

@@ -18,7 +18,7 @@ Three checks, each a tidy table:
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -88,6 +88,8 @@ class Sensitivity:
     verdicts: pd.DataFrame
     truths: tuple[str, ...]
     pseudo_run: Path | None
+    #: the real-time run scored under each truth (scores only, no tests); empty when read from CSV
+    evaluations: dict = field(default_factory=dict, repr=False)
 
     def summary(self) -> str:
         lines = ["Revision sensitivity (score: CRPS, full sample; ratio < 1 = better than the benchmark)", ""]
@@ -121,9 +123,11 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
     """Score one ledger under several truths; return (ratio table, rankings, evaluations by truth)."""
     from harness.evaluate import evaluate
     from harness.ledger import Ledger, read_ledger
+    from vintages.store import VintageStore
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
-    evs = {t: evaluate(ledger, t, tests=False) for t in truths}
+    cube = VintageStore(ledger.manifest["store"]).cube(variables=list(ledger.manifest["variables"]))
+    evs = {t: evaluate(ledger, t, cube=cube, tests=False) for t in truths}
     rows = []
     for t, ev in evs.items():
         tab = ev.table[ev.table["subperiod"] == subperiod]
@@ -149,13 +153,13 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
                      score: str = "crps"):
     """Rerun the spec in pseudo-real-time mode and compare scores with the real-time run."""
     from harness import compare
-    from harness.evaluate import evaluate
+    from harness.evaluate import evaluate, steps_ahead
     from harness.runner import run
 
     pseudo_spec = replace(spec, mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
                           cache=spec.cache_dir)
     res = run(pseudo_spec, jobs=jobs, backend=backend, progress=progress, log=log)
-    pseudo = evaluate(res.run_dir, truth, tests=False)
+    pseudo = evaluate(res.run_dir, truth, tests=False)  # its own ledger; the store is the same
     key = ["model", "origin", "variable", "horizon"]
     a = real_eval.forecasts[key + [score]]
     b = pseudo.forecasts[key + [score]]
@@ -176,7 +180,7 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
                    difference=rt.mean() - ps.mean(), stat=np.nan, pvalue=np.nan,
                    ratio_real_time=r_rt.get((model, var, h), np.nan), ratio_pseudo=r_ps.get((model, var, h), np.nan))
         if len(g) >= 4 and np.any(rt != ps):
-            r = compare.diebold_mariano(rt, ps, h=max(int(h) + 1, 1))
+            r = compare.diebold_mariano(rt, ps, h=steps_ahead(h))
             row.update(stat=r.stat, pvalue=r.pvalue)
         rows.append(row)
     out = pd.DataFrame(rows)
@@ -208,7 +212,7 @@ def revision_exposure(evs: dict, benchmark: str, truths) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def _verdicts(truth_table, rankings, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
+def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
     rows = []
     for model, g in truth_table.groupby("model", sort=False):
         if model == benchmark:
@@ -262,5 +266,5 @@ def sensitivity(spec, *, truths=None, run_dir=None, jobs=None, backend="loky", p
     else:
         dtable, pseudo_dir = pd.DataFrame(), None
     exposure = revision_exposure(evs, benchmark, truths)
-    verdicts = _verdicts(table, rankings, dtable, benchmark)
-    return Sensitivity(table, rankings, dtable, exposure, verdicts, truths, pseudo_dir)
+    verdicts = _verdicts(table, dtable, benchmark)
+    return Sensitivity(table, rankings, dtable, exposure, verdicts, truths, pseudo_dir, evs)

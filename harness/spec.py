@@ -57,6 +57,8 @@ from pathlib import Path
 from typing import Any
 
 from harness.errors import SpecError
+from vintages.infoset import FREQS, MODES, POLICIES, TRANSFORMS
+from vintages.transforms import CONVERSIONS, PARTIAL_POLICIES
 
 RUN_KEYS = {"store", "out", "seed", "draws", "freq", "policy", "mode", "cache", "name"}
 SECTION_KEYS = {"run", "origins", "variables", "targets", "models", "scoring"}
@@ -64,11 +66,6 @@ VARIABLE_KEYS = {"transform", "convert", "partial"}  # partial: keep | drop (def
 TARGET_KEYS = {"variables", "horizons"}
 SCORING_KEYS = {"benchmark", "truths", "truth", "chronology", "cycle_variable", "subperiods",
                 "quantile_levels", "coverage_levels", "min_phase", "min_cycle"}
-POLICIES = ("balance", "keep", "realign")
-MODES = ("pseudo", "real-time")
-FREQS = ("M", "Q")
-TRANSFORMS = ("diff", "dlog", "dlog_ann", "level", "yoy")
-CONVERTS = ("last", "mean", "mean3", "sum")
 _NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_\-]{0,63}$")
 
 
@@ -269,7 +266,7 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
     try:
         from vintages.calendar import parse_schedule
 
-        parse_schedule(origins, validate_only=True) if _accepts_validate_only(parse_schedule) else None
+        parse_schedule(origins, validate_only=True)
     except (ValueError, TypeError) as exc:
         raise _err(path, "[origins]", str(exc)) from None
 
@@ -283,14 +280,14 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
             raise _err(path, where, "variable names are letters, digits and '_'")
         _check_keys(path, where, v, VARIABLE_KEYS)
         t = v.get("transform", "level")
-        if t not in TRANSFORMS and not _is_registered_transform(t):
+        if t not in TRANSFORMS:  # built-in and registered transformations
             raise _err(path, f"{where} transform", f"{t!r} is not allowed; expected one of "
-                       f"{', '.join(sorted(set(TRANSFORMS) | set(_registered_transforms())))}")
+                       f"{', '.join(sorted(TRANSFORMS))}")
         d = {"transform": t}
         if "convert" in v:
-            d["convert"] = _choice(path, f"{where} convert", v["convert"], CONVERTS)
+            d["convert"] = _choice(path, f"{where} convert", v["convert"], CONVERSIONS)
         if "partial" in v:
-            d["partial"] = _choice(path, f"{where} partial", v["partial"], ("drop", "keep"))
+            d["partial"] = _choice(path, f"{where} partial", v["partial"], PARTIAL_POLICIES)
         vspec[vname] = d
 
     tg = raw["targets"]
@@ -416,26 +413,3 @@ def _init_params(cls) -> set[str] | None:
     if any(p.kind is p.VAR_KEYWORD for p in sig.parameters.values()):
         return None
     return {n for n, p in sig.parameters.items() if n != "self" and p.kind is not p.VAR_POSITIONAL}
-
-
-def _accepts_validate_only(fn) -> bool:
-    import inspect
-
-    try:
-        return "validate_only" in inspect.signature(fn).parameters
-    except (TypeError, ValueError):
-        return False
-
-
-def _registered_transforms() -> list[str]:
-    try:
-        from vintages import infoset
-
-        reg = getattr(infoset, "TRANSFORMS", None) or getattr(infoset, "_TRANSFORMS", None) or {}
-        return list(reg)
-    except ImportError:
-        return []
-
-
-def _is_registered_transform(name: str) -> bool:
-    return name in _registered_transforms()

@@ -5,12 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-
-def stars(p: float) -> str:
-    """Significance marker of a p-value: *** 1 %, ** 5 %, * 10 %."""
-    if p is None or not np.isfinite(p):
-        return ""
-    return "***" if p < 0.01 else "**" if p < 0.05 else "*" if p < 0.10 else ""
+from harness.report.tables import stars
 
 
 def relative_text(ev, score: str = "crps", subperiods=None) -> str:

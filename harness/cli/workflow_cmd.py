@@ -73,7 +73,7 @@ def score_cmd(
     score: Annotated[str, typer.Option(help="Score shown in the terminal tables (crps, se_mean, log_score, …).")] = "crps",
 ) -> None:
     """Score a run against a truth (no refitting) and print relative-score tables with tests."""
-    from harness.evaluate import evaluate, save
+    from harness.evaluate import evaluate, save, write_forecasts
     from harness.textable import relative_text
 
     ev = evaluate(run_dir, truth)
@@ -87,12 +87,7 @@ def score_cmd(
     if len(ev.missing):
         typer.echo(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
     if out is not None:
-        cols = [c for c in ev.forecasts.columns if c != "subperiods"]
-        f = ev.forecasts[cols].copy()
-        f["subperiods"] = ev.forecasts["subperiods"].map(";".join)
-        tmp = out.with_name(out.name + ".tmp")
-        f.to_csv(tmp, index=False)
-        tmp.replace(out)
+        write_forecasts(ev, out)
         save(ev, out.parent / (out.stem + "_tables"))
         typer.echo(f"wrote {out} and tables in {out.parent / (out.stem + '_tables')}")
 
