@@ -37,6 +37,7 @@ def _time_cmd(cmd) -> float:
 
 def bench_runner(quick: bool = False) -> dict[str, float]:
     """The demo spec: cold wall time, 2-vs-1 worker speed-up, incremental rerun, naive-loop ratio."""
+    import numpy as np
     import pandas as pd
 
     from harness.demo import write_demo_data
@@ -106,8 +107,6 @@ def bench_runner(quick: bool = False) -> dict[str, float]:
             sub = log[log["release"] <= pd.Timestamp(o)]
             sub.sort_values("release").groupby(["variable", "period"]).last().unstack("variable")
             for t in [t for t in plan.tasks if t.origin == o]:
-                import numpy as np
-
                 plan.models[t.model].forecast(plan.infos[t.index], plan.targets[t.index], spec.draws,
                                               np.random.default_rng(0))
         naive = (time.perf_counter() - t0) / n_naive * len(plan.origins)

@@ -75,17 +75,15 @@ def ingest_cmd(
         fail("a triangle holds one variable: name it with --variable NAME", code=2)
     st = VintageStore(store)
     known = st.variables
+    given = {k: v for k, v in (("freq", freq.value if freq else None), ("units", units),
+                                ("description", description)) if v is not None}
     tables = []
-    for f in files:  # validate all files first: either all are appended or none
-        t = read_releases(f, layout=layout.value, variable=variable, freq=freq.value if freq else None)
-        meta = {n: {"freq": freq.value} for n in set(t["variable"].astype(str))} if freq else {}
+    for f in files:  # validate every file first: either all are appended or none
+        t = read_releases(f, layout=layout.value, variable=variable, freq=given.get("freq"))
+        meta = {n: dict(given) for n in set(t["variable"].astype(str))} if given else {}
         validate_table(t, known=known, new_meta=meta, source=str(f), allow_early=allow_early)
         tables.append((f, t, meta))
     for f, t, meta in tables:
-        for n in meta:
-            meta[n].update({k: v for k, v in (("units", units), ("description", description)) if v is not None})
-        if not meta and (units or description):
-            meta = {n: {"units": units or "", "description": description or ""} for n in set(t["variable"].astype(str))}
         res = st.append(t, meta, supersede=supersede, source=str(f), reason=reason, allow_early=allow_early)
         typer.echo(f"{f}: {res.summary()}")
 
