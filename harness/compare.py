@@ -17,8 +17,8 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, special, stats
 
-Kernel = Literal["bartlett", "rectangular"]
-KERNELS: tuple[str, ...] = ("bartlett", "rectangular")
+from vintages import KERNELS, Kernel, long_run_variance
+
 Alternative = Literal["two-sided", "less", "greater"]
 ALTERNATIVES: tuple[str, ...] = ("greater", "less", "two-sided")
 Bootstrap = Literal["stationary", "moving_block", "circular"]
@@ -62,44 +62,6 @@ def _check_int(value, name: str, where: str, minimum: int) -> int:
     if isinstance(value, bool) or int(value) != value or value < minimum:
         raise ValueError(f"{where}: {name} must be an integer >= {minimum}; got {value!r}")
     return int(value)
-
-
-def long_run_variance(d, lags: int, kernel: Kernel = "rectangular", *, demean: bool = True) -> float:
-    """Long-run variance gamma_0 + 2 sum_{j=1}^{lags} w_j gamma_j of a series.
-
-    Autocovariances use divisor T. Weights: ``rectangular`` w_j = 1 (Diebold & Mariano 1995;
-    may be negative), ``bartlett`` w_j = 1 - j/(lags + 1) (Newey & West 1987; never negative).
-
-    Parameters
-    ----------
-    d : ndarray, shape (T,)
-    lags : int
-        Truncation lag (>= 0).
-    kernel : {"bartlett", "rectangular"}
-    demean : bool
-        Subtract the sample mean first.
-
-    Returns
-    -------
-    float
-
-    References
-    ----------
-    Diebold, F. X. and Mariano, R. S. (1995). Comparing predictive accuracy. JBES 13(3), 253-263.
-    Newey, W. K. and West, K. D. (1987). A simple, positive semi-definite, heteroskedasticity and
-    autocorrelation consistent covariance matrix. Econometrica 55(3), 703-708.
-    """
-    _check_choice(kernel, KERNELS, "kernel", "long_run_variance")
-    lags = _check_int(lags, "lags", "long_run_variance", 0)
-    x = np.asarray(d, dtype=np.float64)
-    if demean:
-        x = x - x.mean()
-    t = x.size
-    lags = min(lags, t - 1)
-    gam = np.array([x[j:] @ x[: t - j] for j in range(lags + 1)]) / t
-    j = np.arange(1, lags + 1)
-    w = np.ones(lags) if kernel == "rectangular" else 1.0 - j / (lags + 1.0)
-    return float(gam[0] + 2.0 * (w @ gam[1:]))
 
 
 def _pvalue(stat: float, dist, alternative: str) -> float:

@@ -74,15 +74,15 @@ def demo_spec_text(*, small: bool = False) -> str:
 
 def write_demo_data(out: Path, *, small: bool = False) -> Path:
     """Write ``out/store``, ``out/chronology.csv`` and ``out/spec.toml``; return the spec path."""
-    from vintages.demo import build_demo_store, simulate, write_chronology
+    from vintages import build_demo_store, simulate_demo, write_demo_chronology
 
     out = Path(out)
     if (out / "store").exists():
         shutil.rmtree(out / "store")
     out.mkdir(parents=True, exist_ok=True)
-    data = simulate()
+    data = simulate_demo()
     build_demo_store(out / "store", data=data)
-    write_chronology(out / "chronology.csv")
+    write_demo_chronology(out / "chronology.csv")
     (out / "spec.toml").write_text(demo_spec_text(small=small))
     return out / "spec.toml"
 

@@ -70,7 +70,7 @@ class Evaluation:
 
 
 def _truths(cube, rule: str, variables: dict, targets: list[str], periods_by_var: dict, freq: str) -> pd.DataFrame:
-    from vintages.infoset import truth_values
+    from vintages import truth_values
 
     rows = []
     for v in targets:
@@ -85,7 +85,7 @@ def _truths(cube, rule: str, variables: dict, targets: list[str], periods_by_var
 
 def regimes_for(manifest: dict, cube, periods: pd.PeriodIndex) -> tuple[pd.Series, str, pd.DataFrame]:
     """Recession/expansion label per period: from the chronology file, else Harding–Pagan dating."""
-    from harness.chronology import harding_pagan, read_chronology, regimes
+    from vintages import harding_pagan, read_chronology, regimes
 
     scoring = manifest.get("scoring", {})
     if scoring.get("chronology"):
@@ -126,8 +126,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     """
     from harness import compare
     from harness.scoring import aggregate, assign_subperiods, common_sample, relative_to, score_all
-    from vintages.infoset import parse_truth
-    from vintages.store import VintageStore
+    from vintages import VintageStore, parse_truth
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
     man = ledger.manifest

@@ -27,7 +27,7 @@ import pyarrow.parquet as pq
 import xarray as xr
 
 from harness.errors import RunError
-from vintages.store import atomic_write_bytes
+from vintages import atomic_write_bytes
 
 
 def _atomic_write(path: Path, data: bytes) -> None:

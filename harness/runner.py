@@ -131,9 +131,7 @@ def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
 def make_plan(spec: Spec) -> Plan:
     """Resolve a spec: open the store, schedule origins, build information sets, key every task."""
     from harness.models.base import get_model_class
-    from vintages.calendar import check_origins, parse_schedule
-    from vintages.infoset import build_infosets, make_targets
-    from vintages.store import VintageStore
+    from vintages import VintageStore, build_infosets, check_origins, make_targets, parse_schedule
 
     t0 = time.perf_counter()
     store = VintageStore(spec.store)

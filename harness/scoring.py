@@ -43,7 +43,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
-from vintages.periods import parse_periods
+from vintages import parse_periods
 
 QuantileMethod = Literal["linear", "inverted_cdf"]
 QUANTILE_METHODS: tuple[str, ...] = ("inverted_cdf", "linear")

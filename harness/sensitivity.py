@@ -123,7 +123,7 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
     """Score one ledger under several truths; return (ratio table, rankings, evaluations by truth)."""
     from harness.evaluate import evaluate
     from harness.ledger import Ledger, read_ledger
-    from vintages.store import VintageStore
+    from vintages import VintageStore
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
     cube = VintageStore(ledger.manifest["store"]).cube(variables=list(ledger.manifest["variables"]))

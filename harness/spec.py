@@ -57,8 +57,7 @@ from pathlib import Path
 from typing import Any
 
 from harness.errors import SpecError
-from vintages.infoset import FREQS, MODES, POLICIES, TRANSFORMS
-from vintages.transforms import CONVERSIONS, PARTIAL_POLICIES
+from vintages import CONVERSIONS, FREQS, MODES, PARTIAL_POLICIES, POLICIES, TRANSFORMS
 
 RUN_KEYS = {"store", "out", "seed", "draws", "freq", "policy", "mode", "cache", "name"}
 SECTION_KEYS = {"run", "origins", "variables", "targets", "models", "scoring"}
@@ -165,7 +164,7 @@ def _date(path, where, value) -> str:
 
 
 def _period(path, where, value, freq) -> str:
-    from vintages.periods import parse_periods
+    from vintages import parse_periods
 
     o, f = parse_periods([str(value)])
     if f[0] != freq:
@@ -264,7 +263,7 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
             raise _err(path, "[origins] dates", "expected a non-empty list of dates")
         origins["dates"] = [_date(path, f"[origins] dates[{i}]", d) for i, d in enumerate(origins["dates"])]
     try:
-        from vintages.calendar import parse_schedule
+        from vintages import parse_schedule
 
         parse_schedule(origins, validate_only=True)
     except (ValueError, TypeError) as exc:
@@ -360,7 +359,7 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
     truths = scoring.get("truths", ["first", "latest"])
     if isinstance(truths, str):
         truths = [truths]
-    from vintages.infoset import parse_truth
+    from vintages import parse_truth
 
     for t in truths:
         try:

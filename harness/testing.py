@@ -30,7 +30,7 @@ import pandas as pd
 import xarray as xr
 
 from harness.models.errors import InsufficientDataError
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = [
     "check_model",

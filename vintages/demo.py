@@ -289,6 +289,8 @@ def write_chronology(path: str | os.PathLike, chronology_frame: pd.DataFrame | N
 def recession_quarters(chronology_frame: pd.DataFrame | None = None) -> pd.PeriodIndex:
     """The quarters in recession: after each peak up to and including its trough.
 
+    The rule is :func:`vintages.chronology.regimes`' (the one definition of a recession).
+
     Parameters
     ----------
     chronology_frame : pandas.DataFrame, optional
@@ -299,12 +301,17 @@ def recession_quarters(chronology_frame: pd.DataFrame | None = None) -> pd.Perio
     pandas.PeriodIndex
         Quarterly periods, sorted.
     """
-    frame = chronology() if chronology_frame is None else chronology_frame
-    peaks = parse_periods(frame["peak"].astype(str).to_numpy())[0]
-    troughs = parse_periods(frame["trough"].astype(str).to_numpy())[0]
-    spans = [np.arange(p + 1, t + 1) for p, t in zip(peaks, troughs, strict=True)]
-    ords = np.concatenate(spans) if spans else np.zeros(0, dtype=np.int64)
-    return period_index(np.unique(ords), "Q")
+    from vintages.chronology import RECESSION, parse_chronology_frame, regimes
+
+    frame = parse_chronology_frame(chronology() if chronology_frame is None else chronology_frame)
+    if not len(frame):
+        return period_index(np.zeros(0, dtype=np.int64), "Q")
+    ords = np.concatenate([frame[c].array.asi8 for c in ("peak", "trough")])
+    ords = ords[ords != np.iinfo(np.int64).min]  # NaT: an open end
+    lo, hi = int(ords.min()), int(ords.max())
+    quarters = period_index(np.arange(lo, hi + 1), "Q")
+    reg = regimes(frame, quarters)
+    return quarters[(reg == RECESSION).to_numpy()]
 
 
 def build_demo_store(

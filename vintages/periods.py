@@ -88,6 +88,35 @@ def _freq_code(offset) -> str:
     return ""
 
 
+def freq_of(obj) -> str | None:
+    """The project's frequency code of a period-like object: ``"Q"``, ``"M"`` or ``""``.
+
+    The one place where a frequency is read off pandas objects: a :class:`pandas.Period`, a
+    :class:`pandas.PeriodIndex`, a period-dtype Series or array, a :class:`pandas.PeriodDtype`
+    or a frequency offset/string. Returns ``""`` for other period frequencies (fiscal
+    quarters, multiples such as ``2M``) and ``None`` when ``obj`` carries no period frequency
+    at all (e.g. a column of text labels, which :func:`parse_periods` reads instead).
+
+    Examples
+    --------
+    >>> freq_of(pd.Period("2001Q3", "Q")), freq_of(pd.period_range("2001-01", periods=2, freq="M"))
+    ('Q', 'M')
+    >>> freq_of(pd.Series(["2001Q3"])) is None
+    True
+    """
+    if isinstance(obj, pd.Period):
+        return _freq_code(obj.freq)
+    dtype = obj if isinstance(obj, pd.PeriodDtype) else getattr(obj, "dtype", None)
+    if isinstance(dtype, pd.PeriodDtype):
+        return _freq_code(dtype.freq)
+    if dtype is not None:
+        return None
+    try:
+        return _freq_code(obj)
+    except (TypeError, ValueError):
+        return None
+
+
 def format_periods(ordinals, freq: str) -> np.ndarray:
     """Format ordinals of one frequency as labels ('2001Q3' or '2001-07').
 

@@ -48,8 +48,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
+from vintages.hac import newey_west_lags, ols_hac
 from vintages.infoset import SeriesSpec, _to_ordinals, parse_truth, truth_values
 from vintages.periods import format_periods
 
@@ -84,70 +84,6 @@ COLUMNS: tuple[str, ...] = (
     "news_p",
     "hac_lags",
 )
-
-
-def newey_west_lags(n: int) -> int:
-    """Rule-of-thumb truncation lag ``floor(4 (n/100)^(2/9))`` (Newey and West 1994)."""
-    if n <= 0:
-        return 0
-    return int(np.floor(4.0 * (n / 100.0) ** (2.0 / 9.0)))
-
-
-def ols_hac(y, X, lags: int, *, small_sample: bool = False) -> dict[str, np.ndarray]:
-    """OLS with a Newey–West (Bartlett kernel) covariance of the coefficients.
-
-    Parameters
-    ----------
-    y : array_like, shape (n,)
-    X : array_like, shape (n, k)
-        Regressors (include a column of ones for an intercept).
-    lags : int
-        Truncation lag ``L`` ≥ 0; autocovariance ``j`` gets weight ``1 - j/(L+1)``.
-    small_sample : bool
-        Multiply the covariance by ``n/(n-k)``.
-
-    Returns
-    -------
-    dict
-        ``beta``, ``se``, ``t``, ``p`` (two-sided, standard normal), each shape (k,), and
-        ``cov`` (k, k).
-
-    Raises
-    ------
-    ValueError
-        When shapes disagree, ``lags`` is negative, or there are fewer observations than
-        regressors.
-
-    References
-    ----------
-    Newey, W. K. and West, K. D. (1987). *Econometrica* 55(3), 703–708.
-    """
-    y = np.asarray(y, dtype=np.float64).ravel()
-    X = np.asarray(X, dtype=np.float64)
-    if X.ndim == 1:
-        X = X[:, None]
-    n, k = X.shape
-    if len(y) != n:
-        raise ValueError(f"ols_hac: y has {len(y)} observations but X has {n} rows; expected equal")
-    if lags < 0:
-        raise ValueError(f"ols_hac: lags must be ≥ 0; got {lags}")
-    if n <= k:
-        raise ValueError(f"ols_hac: needs more observations than regressors; got n={n}, k={k}")
-    xtx_inv = np.linalg.inv(X.T @ X)
-    beta = xtx_inv @ (X.T @ y)
-    g = X * (y - X @ beta)[:, None]  # scores x_t u_t
-    S = g.T @ g
-    for j in range(1, min(int(lags), n - 1) + 1):
-        G = g[j:].T @ g[:-j]
-        S += (1.0 - j / (lags + 1.0)) * (G + G.T)
-    cov = xtx_inv @ S @ xtx_inv
-    if small_sample:
-        cov *= n / (n - k)
-    se = np.sqrt(np.diag(cov))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = beta / se
-    p = 2.0 * stats.norm.sf(np.abs(t))
-    return {"beta": beta, "se": se, "t": t, "p": p, "cov": cov}
 
 
 def _default_freq(cube: Cube, variable: str, spec: SeriesSpec) -> str:

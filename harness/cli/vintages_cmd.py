@@ -40,7 +40,7 @@ StoreArg = Annotated[Path, typer.Argument(help="Path of the vintage store direct
 @friendly
 def init_cmd(store: StoreArg) -> None:
     """Create an empty vintage store at STORE."""
-    from vintages.store import VintageStore
+    from vintages import VintageStore
 
     VintageStore.init(store)
     typer.echo(f"created empty vintage store at {store}")
@@ -68,8 +68,7 @@ def ingest_cmd(
     Every file is validated completely before anything is written; an invalid file leaves the
     store untouched and the command stops with a one-line error naming file, line and field.
     """
-    from vintages.ingest import read_releases, validate_table
-    from vintages.store import VintageStore
+    from vintages import VintageStore, read_releases, validate_table
 
     if layout is LayoutOpt.triangle and not variable:
         fail("a triangle holds one variable: name it with --variable NAME", code=2)
@@ -92,7 +91,7 @@ def ingest_cmd(
 @friendly
 def info_cmd(store: StoreArg) -> None:
     """Summarise STORE: variables, frequencies, periods and releases held, checksum."""
-    from vintages.store import VintageStore
+    from vintages import VintageStore
 
     st = VintageStore(store)
     m = st.manifest()
@@ -118,7 +117,7 @@ def asof_cmd(
     """Print the information known on DATE: each value's latest release on or before that day."""
     import pandas as pd
 
-    from vintages.store import VintageStore
+    from vintages import VintageStore
 
     try:
         day = pd.Timestamp(date)
@@ -145,7 +144,7 @@ def export_cmd(
     superseded: Annotated[bool, typer.Option("--with-superseded", help="Include superseded values (audit).")] = False,
 ) -> None:
     """Export the whole release log as a long table (variable, period, release, value, batch)."""
-    from vintages.store import VintageStore
+    from vintages import VintageStore
 
     log = VintageStore(store).read_log(with_superseded=superseded)
     log["release"] = log["release"].dt.strftime("%Y-%m-%d")
@@ -170,8 +169,7 @@ def revisions_cmd(
     fmt: Annotated[TableFormat, typer.Option("--format", help="table or csv.")] = TableFormat.table,
 ) -> None:
     """Revision statistics and news-versus-noise regressions for VARIABLE between two estimates."""
-    from vintages.revisions import revisions_table
-    from vintages.store import VintageStore
+    from vintages import VintageStore, revisions_table
 
     table = revisions_table(VintageStore(store).cube(), variable, transform=transform, frm=frm, to=to)
     if fmt is TableFormat.csv:

@@ -10,7 +10,7 @@ import numpy as np
 import xarray as xr
 
 from harness.models.base import BaseModel, _import_path, trailing_run
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = ["FitPredictModel"]
 

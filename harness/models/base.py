@@ -29,7 +29,7 @@ from harness.models.errors import (
     ModelParameterError,
     UnknownModelError,
 )
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = [
     "BaseModel",

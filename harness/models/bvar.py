@@ -45,7 +45,7 @@ from harness.models.base import (
     trailing_run,
 )
 from harness.models.conditional import var_paths
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = ["BayesianVAR", "NIWPosterior", "minnesota_dummies", "niw_posterior", "sample_inverse_wishart"]
 

@@ -77,7 +77,7 @@ from scipy.linalg import lapack
 from harness.models.base import BaseModel, ar1_scales, lag_design, per_variable, register
 from harness.models.bvar import ragged_split
 from harness.models.conditional import var_paths
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = [
     "KSC_MEANS",

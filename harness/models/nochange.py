@@ -6,7 +6,7 @@ import numpy as np
 import xarray as xr
 
 from harness.models.base import BaseModel, register, trailing_run
-from vintages.infoset import InfoSet, Targets
+from vintages import InfoSet, Targets
 
 __all__ = ["NoChange"]
 

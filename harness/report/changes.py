@@ -24,14 +24,14 @@ def _open_store(current, store):
     if store is not None:
         if hasattr(store, "read_log"):
             return store
-        from vintages.store import VintageStore
+        from vintages import VintageStore
 
         return VintageStore(store)
     path = (current.manifest or {}).get("store")
     if not path:
         return None
     try:
-        from vintages.store import VintageStore
+        from vintages import VintageStore
 
         return VintageStore(path)
     except (OSError, ValueError, RuntimeError):  # the store may live on another machine

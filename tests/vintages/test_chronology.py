@@ -1,4 +1,4 @@
-"""Tests of harness.chronology: reading chronologies, regimes, and Harding-Pagan dating.
+"""Tests of vintages.chronology: reading chronologies, regimes, and Harding-Pagan dating.
 
 Sources: Harding & Pagan (2002), J. Monetary Economics 49(2), 365-381 (quarterly BBQ rules:
 local extremum over +-2 quarters, alternation, minimum phase 2 and cycle 5 quarters); the
@@ -14,7 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from harness import chronology as ch
+from vintages import chronology as ch
 from vintages.errors import InputError
 
 

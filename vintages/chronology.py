@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from vintages.errors import InputError
-from vintages.periods import parse_periods
+from vintages.periods import freq_of, parse_periods
 
 COLUMNS = ("peak", "trough")
 RECESSION = "recession"
@@ -80,8 +80,41 @@ def read_chronology(path: str | Path) -> pd.DataFrame:
     if missing:
         raise InputError(f"missing column(s) {missing}; expected columns {list(COLUMNS)}, got "
                          f"{sorted(raw.columns)}", file=src, line=1, field=missing[0])
+    return _from_cells(raw[list(COLUMNS)], src)
+
+
+def parse_chronology_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    """A chronology frame of labels (or Periods) checked and converted by :func:`read_chronology`'s rules.
+
+    Parameters
+    ----------
+    frame : DataFrame
+        Columns ``peak`` and ``trough``: period labels, ``pandas.Period`` objects or a period
+        dtype; empty strings or NaT where missing.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``peak``, ``trough`` of a Period dtype.
+
+    Raises
+    ------
+    InputError
+        The first problem, with its row (1 = header, as in a file).
+    """
+    missing = [c for c in COLUMNS if c not in frame.columns]
+    if missing:
+        raise InputError(f"missing column(s) {missing}; expected columns {list(COLUMNS)}",
+                         file="<chronology>")
+    cells = frame[list(COLUMNS)].apply(
+        lambda s: s.map(lambda x: "" if x is None or (not isinstance(x, str) and pd.isna(x)) else str(x)))
+    return _from_cells(cells, "<chronology>")
+
+
+def _from_cells(raw: pd.DataFrame, src: str) -> pd.DataFrame:
+    """Validate text cells (one row per recession) and build the Period-dtype chronology."""
     lines = np.arange(2, len(raw) + 2)
-    cells = raw[list(COLUMNS)].apply(lambda s: s.str.strip())
+    cells = raw.apply(lambda s: s.astype(str).str.strip())
     blank = (cells == "").all(axis=1).to_numpy()
     cells, lines = cells[~blank].reset_index(drop=True), lines[~blank]
     if cells.empty:
@@ -134,15 +167,6 @@ def _last_month(ords: np.ndarray, freq: str) -> np.ndarray:
     return ords * 3 + 2 if freq == "Q" else ords
 
 
-def _freq_of_dtype(dtype) -> str:
-    text = str(dtype).upper()
-    if text.startswith("PERIOD[Q"):
-        return "Q"
-    if text.startswith("PERIOD[M"):
-        return "M"
-    return ""
-
-
 def regimes(chronology: pd.DataFrame, periods: pd.PeriodIndex) -> pd.Series:
     """Map each period to "recession" or "expansion".
 
@@ -170,13 +194,13 @@ def regimes(chronology: pd.DataFrame, periods: pd.PeriodIndex) -> pd.Series:
     """
     if not isinstance(periods, pd.PeriodIndex):
         raise ValueError(f"regimes: periods must be a pandas PeriodIndex; got {type(periods).__name__}")
-    pf = _freq_of_dtype(periods.dtype)
+    pf = (freq_of(periods) or "")
     if pf == "":
         raise ValueError(f"regimes: periods must be quarterly or monthly; got {periods.dtype}")
     missing = [c for c in COLUMNS if c not in chronology.columns]
     if missing:
         raise ValueError(f"regimes: chronology lacks column(s) {missing}; expected {list(COLUMNS)}")
-    cf = {_freq_of_dtype(chronology[c].dtype) for c in COLUMNS}
+    cf = {freq_of(chronology[c].dtype) or "" for c in COLUMNS}
     if len(cf) != 1 or "" in cf:
         raise ValueError("regimes: chronology columns must share a Q or M Period dtype; got "
                          f"{[str(chronology[c].dtype) for c in COLUMNS]}")
@@ -249,7 +273,7 @@ def harding_pagan(series: pd.Series, min_phase: int = 2, min_cycle: int = 5,
     where = "harding_pagan"
     if not isinstance(series, pd.Series) or not isinstance(series.index, pd.PeriodIndex):
         raise ValueError(f"{where}: series must be a pandas Series indexed by a PeriodIndex")
-    freq = _freq_of_dtype(series.index.dtype)
+    freq = (freq_of(series.index) or "")
     if freq == "":
         raise ValueError(f"{where}: the index must be quarterly or monthly; got {series.index.dtype}")
     for name, val in (("min_phase", min_phase), ("min_cycle", min_cycle), ("window", window)):
