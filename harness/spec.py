@@ -343,11 +343,17 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
                     raise _err(path, where, f"unknown key {k!r}; parameters of {m['type']}: "
                                f"{', '.join(sorted(allowed)) or '(none)'}")
         try:
-            cls(**params)
+            from harness.models.params import coerce_toml, validate_params
+
+            params = {k: coerce_toml(cls, k, v) for k, v in params.items()}
+            model = cls(**params)
+            full = model.params() if callable(getattr(model, "params", None)) else params
+            validate_params(cls, {**full, **params}, model=mname)
         except TypeError as exc:
             raise _err(path, where, f"bad parameters for {m['type']}: {exc}") from None
         except ValueError as exc:
-            raise _err(path, where, str(exc)) from None
+            bad = re.search(r"parameter '([^']+)'", str(exc))
+            raise _err(path, f"{where} {bad.group(1)}" if bad else where, str(exc)) from None
         models.append(ModelSpec(mname, m["type"], params))
 
     scoring = dict(raw.get("scoring", {}))

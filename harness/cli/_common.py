@@ -33,10 +33,12 @@ def friendly(func):
         except (ValueError, KeyError, FileNotFoundError, FileExistsError, RuntimeError, OSError) as exc:
             if os.environ.get("HARNESS_DEBUG"):
                 raise  # HARNESS_DEBUG=1 shows the full traceback
+            from harness.errors import SpecError
+
             msg = str(exc.args[0]) if isinstance(exc, KeyError) and exc.args else str(exc)
             # one line: the first line of the message carries what failed and where
             typer.echo(f"error: {msg.splitlines()[0] if msg else type(exc).__name__}", err=True)
-            raise typer.Exit(code=DATA_ERROR) from None
+            raise typer.Exit(code=USAGE_ERROR if isinstance(exc, SpecError) else DATA_ERROR) from None
 
     return wrapper
 

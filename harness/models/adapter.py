@@ -7,10 +7,9 @@ import inspect
 from typing import Any
 
 import numpy as np
-import xarray as xr
 
-from harness.models.base import BaseModel, _import_path, trailing_run
-from vintages import InfoSet, Targets
+from harness.models.base import BaseModel, TargetLayout, _import_path, trailing_run
+from harness.models.params import HasMethods, ImportPath, Interval, JSONTable
 
 __all__ = ["FitPredictModel"]
 
@@ -74,6 +73,12 @@ class FitPredictModel(BaseModel):
 
     name = "fit_predict"
     version = "1"
+    param_constraints = {
+        "estimator": [ImportPath(), HasMethods("fit", "predict")],
+        "lags": [Interval(int, 1, 24)],
+        "estimator_params": [JSONTable(), None],
+        "min_train": [Interval(int, 1, None), None],
+    }
 
     def __init__(self, estimator: Any, lags: int = 4, estimator_params: dict | None = None,
                  min_train: int | None = None):
@@ -100,16 +105,16 @@ class FitPredictModel(BaseModel):
                                   "(set its parameters on the object)", self.estimator_params)
         return copy.deepcopy(self.estimator)
 
-    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
-        lags = self._check_int("lags", self.lags, 1)
-        lay = self._layout(info, targets, n_draws, rng)
+        lags = int(self.lags)
+        lay = layout
+        n_draws = lay.n_draws
+        targets = lay.targets
         vals = lay.values
         start, stop = trailing_run(vals)
         n = vals.shape[1]
-        min_train = n * lags + 2 if self.min_train is None else self._check_int("min_train",
-                                                                                self.min_train, 1)
+        min_train = n * lags + 2 if self.min_train is None else int(self.min_train)
         if stop - start < lags:
             raise self._fail(f"the balanced sample needs at least lags = {lags} periods to build "
                              f"features, got {stop - start}")
@@ -138,4 +143,4 @@ class FitPredictModel(BaseModel):
                 draws[:, j, k] = point + resid[rng.integers(0, len(resid), size=n_draws)]
                 fitted[(targets.variables[j], s)] = est
         self.estimators_ = fitted
-        return self._output(draws, lay)
+        return draws

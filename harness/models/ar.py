@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-import xarray as xr
 
-from harness.models.base import BaseModel, register, trailing_run
-from vintages import InfoSet, Targets
+from harness.models.base import BaseModel, TargetLayout, register
+from harness.models.params import Boolean, Interval, Options
 
 __all__ = ["AutoRegression", "ar_design", "select_ar_order"]
 
@@ -119,23 +118,20 @@ class AutoRegression(BaseModel):
 
     name = "ar"
     version = "1"
+    param_constraints = {
+        "max_lags": [Interval(int, 0, 24)],
+        "ic": [Options("aic", "bic"), None],
+        "param_uncertainty": [Boolean()],
+    }
 
     def __init__(self, max_lags: int = 4, ic: str | None = "bic", param_uncertainty: bool = True):
         self.max_lags = max_lags
         self.ic = ic
         self.param_uncertainty = param_uncertainty
 
-    def _validate(self) -> int:
-        p = self._check_int("max_lags", self.max_lags, 0)
-        if self.ic is not None:
-            self._check_choice("ic", self.ic, ("aic", "bic"))
-        if not isinstance(self.param_uncertainty, (bool, np.bool_)):
-            raise self._bad_param("param_uncertainty", "True or False", self.param_uncertainty)
-        return p
-
     def fit_series(self, y: np.ndarray, name: str = "y") -> dict:
         """Order choice and OLS estimates for one series (the per-variable learned state)."""
-        max_lags = self._validate()
+        max_lags = int(self.validate()["max_lags"])
         needed = 2 * max_lags + 3
         if len(y) < needed:
             raise self._fail(f"variable {name!r} needs at least {needed} consecutive observations "
@@ -149,30 +145,26 @@ class AutoRegression(BaseModel):
         return {"order": p, "coef": beta, "ssr": float(resid @ resid), "dof": dof,
                 "sigma2": float(resid @ resid) / dof, "r": r, "last": y[len(y) - p:][::-1].copy()}
 
-    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
-        self._validate()
-        lay = self._layout(info, targets, n_draws, rng)
-        nv, nh = lay.observed.shape
-        draws = np.zeros((n_draws, nv, nh))
-        runs = [trailing_run(lay.values[:, col]) for col in lay.columns]
-        fitted = [self.fit_series(lay.values[start:stop, col], name)
-                  for (start, stop), col, name in zip(runs, lay.columns, targets.variables, strict=True)]
-        all_steps = lay.steps(np.array([lay.ordinals[stop - 1] for _, stop in runs]))
+        nv, nh = layout.observed.shape
+        draws = np.zeros((layout.n_draws, nv, nh))
+        runs, all_steps = layout.own_runs()
+        fitted = [self.fit_series(layout.values[start:stop, col], name) for (start, stop), col, name
+                  in zip(runs, layout.columns, layout.targets.variables, strict=True)]
         fits = {}
         for j, fit in enumerate(fitted):
-            fits[targets.variables[j]] = {k: v for k, v in fit.items()
-                                          if k in ("order", "coef", "sigma2", "dof")}
+            fits[layout.targets.variables[j]] = {k: v for k, v in fit.items()
+                                                 if k in ("order", "coef", "sigma2", "dof")}
             steps = all_steps[j]
             horizon = int(steps.max())
             if horizon <= 0:
                 continue
-            paths = self._paths(fit, horizon, n_draws, rng)
+            paths = self._paths(fit, horizon, layout.n_draws, rng)
             live = steps > 0
             draws[:, j, live] = paths[:, steps[live] - 1]
         self.fits_ = fits
-        return self._output(draws, lay)
+        return draws
 
     def _paths(self, fit: dict, horizon: int, n_draws: int, rng: np.random.Generator) -> np.ndarray:
         """Iterated paths ``(D, horizon)``, vectorised over draws."""

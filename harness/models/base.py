@@ -220,20 +220,31 @@ def make_model(type_name: str | type, **params: Any) -> Any:
 
 # ---------------------------------------------------------------------------- base class
 class BaseModel:
-    """Optional base class: ``params()`` from the constructor signature, shared helpers.
+    """Optional base class: declared parameters, ``params()``, one validated forecast template.
 
-    Subclasses store every constructor argument unchanged under the same attribute name and do
-    no work in ``__init__`` (validation happens in :meth:`forecast`); learned state ends in ``_``.
+    Subclasses store every constructor argument unchanged under the same attribute name, do no
+    work in ``__init__`` (learned state ends in ``_``), declare the values each parameter
+    accepts in :attr:`param_constraints` (see :mod:`harness.models.params`; cross-parameter
+    rules go in :meth:`check_params`), and implement :meth:`draw`. :meth:`forecast` is the
+    template shared by the built-ins: validate the parameters, locate every target
+    (:class:`TargetLayout`), call :meth:`draw`, and return :func:`output_array` of the result
+    (already-published targets filled in with their published value).
     """
 
     name: ClassVar[str] = ""
     version: ClassVar[str] = "0"
+    #: parameter name -> list of accepted alternatives (``None`` = the value None)
+    param_constraints: ClassVar[dict[str, list]] = {}
 
     @classmethod
     def _param_names(cls) -> list[str]:
         sig = inspect.signature(cls.__init__)
         return [p.name for p in sig.parameters.values()
                 if p.name != "self" and p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+
+    @classmethod
+    def check_params(cls, params: dict[str, Any], model: str) -> None:
+        """Rules that involve several parameters; raise :class:`ModelParameterError`."""
 
     def params(self) -> dict[str, Any]:
         """The constructor arguments, as stored (JSON-able for the built-in models)."""
@@ -243,9 +254,26 @@ class BaseModel:
         args = ", ".join(f"{k}={v!r}" for k, v in self.params().items())
         return f"{type(self).__name__}({args})"
 
+    def validate(self) -> dict[str, Any]:
+        """Check every parameter against :attr:`param_constraints`; return them coerced."""
+        from harness.models.params import validate_params
+
+        return validate_params(type(self), self.params(), model=self.name)
+
     def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:  # pragma: no cover - abstract
-        raise NotImplementedError(f"{type(self).__name__}.forecast is not implemented")
+                 rng: np.random.Generator) -> xr.DataArray:
+        """Predictive draws, dims ``(draw, variable, horizon)``; see :meth:`draw`."""
+        self.validate()
+        lay = TargetLayout.build(self.name, info, targets, n_draws, rng)
+        return output_array(self.draw(lay, rng), lay, self)
+
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
+        """Draws ``(n_draws, n_target_variables, n_horizons)`` for the targets in ``layout``.
+
+        Cells of targets already published (``layout.observed``) may hold anything: the
+        template overwrites them with the published value.
+        """
+        raise NotImplementedError(f"{type(self).__name__}.draw is not implemented")
 
     # -- helpers for subclasses -------------------------------------------------
     def _fail(self, message: str) -> InsufficientDataError:
@@ -254,34 +282,6 @@ class BaseModel:
     def _bad_param(self, param: str, expected: str, got: Any) -> ModelParameterError:
         return ModelParameterError(f"model {self.name!r}: parameter {param!r} must be {expected}, "
                                    f"got {got!r}")
-
-    def _check_choice(self, param: str, value: Any, options: tuple[str, ...]) -> None:
-        if value not in options:
-            raise self._bad_param(param, f"one of {sorted(options)}", value)
-
-    def _check_int(self, param: str, value: Any, minimum: int) -> int:
-        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < minimum:
-            raise self._bad_param(param, f"an integer >= {minimum}", value)
-        return int(value)
-
-    def _check_float(self, param: str, value: Any, *, positive: bool = True,
-                     allow_none: bool = False) -> float | None:
-        if value is None and allow_none:
-            return None
-        try:
-            v = float(value)
-        except (TypeError, ValueError):
-            raise self._bad_param(param, "a number" + (" or None" if allow_none else ""), value) from None
-        if not np.isfinite(v) or (positive and v <= 0):
-            raise self._bad_param(param, "a finite number > 0" if positive else "a finite number", value)
-        return v
-
-    def _layout(self, info: InfoSet, targets: Targets, n_draws: int,
-                rng: np.random.Generator) -> TargetLayout:
-        return TargetLayout.build(self.name, info, targets, n_draws, rng)
-
-    def _output(self, draws: np.ndarray, layout: TargetLayout) -> xr.DataArray:
-        return output_array(draws, layout, self)
 
 
 def per_variable(model: BaseModel, param: str, value: Any, variables: list[str]) -> np.ndarray:
@@ -328,6 +328,7 @@ class TargetLayout:
     variables: list[str]
     values: np.ndarray
     ordinals: np.ndarray
+    periods: Any  # pandas.PeriodIndex of the panel rows
     targets: Targets
     columns: np.ndarray
     target_ordinals: np.ndarray
@@ -374,8 +375,20 @@ class TargetLayout:
         jj, kk = np.nonzero(inside)
         obs_vals[jj, kk] = values[rows[jj, kk], columns[jj]]
         observed = np.isfinite(obs_vals)
-        return cls(variables, values, ordinals, targets, columns, tord, observed, obs_vals,
-                   int(n_draws), model)
+        return cls(variables, values, ordinals, info.periods, targets, columns, tord, observed,
+                   obs_vals, int(n_draws), model)
+
+    def own_runs(self) -> tuple[list[tuple[int, int]], np.ndarray]:
+        """Per target variable, its trailing run of observations and the steps of each target.
+
+        The run is ``(start, stop)`` of the contiguous stretch of the variable's own observations
+        ending at its last one (:func:`trailing_run`); steps are counted from that last
+        observation (:meth:`steps`), so each univariate model handles the ragged edge per
+        variable the same way.
+        """
+        runs = [trailing_run(self.values[:, col]) for col in self.columns]
+        anchors = np.array([self.ordinals[max(stop, 1) - 1] for _, stop in runs], dtype=np.int64)
+        return runs, self.steps(anchors)
 
     def steps(self, anchor: np.ndarray | int) -> np.ndarray:
         """Steps after ``anchor`` (period ordinal, scalar or per target variable) of each unobserved target.

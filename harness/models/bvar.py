@@ -34,10 +34,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import xarray as xr
 
 from harness.models.base import (
     BaseModel,
+    TargetLayout,
     ar1_scales,
     lag_design,
     per_variable,
@@ -45,7 +45,8 @@ from harness.models.base import (
     trailing_run,
 )
 from harness.models.conditional import var_paths
-from vintages import InfoSet, Targets
+from harness.models.errors import ModelParameterError
+from harness.models.params import Interval, Options, PerVariable
 
 __all__ = ["BayesianVAR", "NIWPosterior", "minnesota_dummies", "niw_posterior", "sample_inverse_wishart"]
 
@@ -337,6 +338,19 @@ class BayesianVAR(BaseModel):
 
     name = "bvar"
     version = "1"
+    param_constraints = {
+        "lags": [Interval(int, 1, None)],
+        "tightness": [Interval(float, 0, None, closed="neither")],
+        # the conjugate NIW form's Kronecker structure shrinks own and cross lags alike: only 1
+        # is coherent (use model 'bvar_sv' for cross != 1)
+        "cross": [Interval(float, 1.0, 1.0)],
+        "lag_decay": [Interval(float, 0, None)],
+        "sum_of_coefficients": [Interval(float, 0, None, closed="neither"), None],
+        "co_persistence": [Interval(float, 0, None, closed="neither"), None],
+        "prior_mean": [Interval(float), PerVariable(Interval(float))],
+        "shocks": [Options("gaussian", "student")],
+        "df": [Interval(float, 0, None, closed="neither")],
+    }
 
     def __init__(self, lags: int = 4, tightness: float = 0.2, cross: float = 1.0,
                  lag_decay: float = 1.0, sum_of_coefficients: float | None = None,
@@ -352,25 +366,16 @@ class BayesianVAR(BaseModel):
         self.shocks = shocks
         self.df = df
 
-    def _validate(self) -> None:
-        self._check_int("lags", self.lags, 1)
-        self._check_float("tightness", self.tightness)
-        if self._check_float("cross", self.cross) != 1.0:
-            raise self._bad_param(
-                "cross", "1.0 in the conjugate Normal-inverse-Wishart form (its Kronecker "
-                "structure shrinks own and cross lags alike; use model 'bvar_sv' for cross != 1)",
-                self.cross)
-        self._check_float("lag_decay", self.lag_decay, positive=False)
-        self._check_float("sum_of_coefficients", self.sum_of_coefficients, allow_none=True)
-        self._check_float("co_persistence", self.co_persistence, allow_none=True)
-        self._check_choice("shocks", self.shocks, ("gaussian", "student"))
-        df = self._check_float("df", self.df)
-        if self.shocks == "student" and df <= 2:
-            raise self._bad_param("df", "> 2 for Student-t shocks with finite variance", self.df)
+    @classmethod
+    def check_params(cls, params: dict, model: str) -> None:
+        """Cross-parameter rules: Student-t shocks need ``df > 2`` (finite variance)."""
+        if params.get("shocks") == "student" and float(params.get("df", 5.0)) <= 2:
+            raise ModelParameterError(f"model {model!r}: parameter 'df' must be > 2 for Student-t "
+                                      f"shocks with finite variance; got {params.get('df')!r}")
 
     def fit_sample(self, y: np.ndarray, variables: list[str]) -> NIWPosterior:
         """The posterior from a balanced sample ``(T, n)`` (columns in ``variables`` order)."""
-        self._validate()
+        self.validate()
         p = int(self.lags)
         if y.shape[0] < p + 3:
             raise self._fail(f"the balanced sample (all {len(variables)} variables observed) needs "
@@ -382,15 +387,13 @@ class BayesianVAR(BaseModel):
         self.scales_ = scales
         return niw_posterior(y, p, y_d, x_d)
 
-    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
-        self._validate()
-        lay = self._layout(info, targets, n_draws, rng)
+        lay, n_draws = layout, layout.n_draws
         start, stop, tail_end = ragged_split(lay.values)
         post = self.fit_sample(lay.values[start:stop], lay.variables)
         self.posterior_ = post
-        self.balanced_end_ = str(info.periods[stop - 1]) if stop else None
+        self.balanced_end_ = str(lay.periods[stop - 1]) if stop else None
         steps = lay.steps(lay.ordinals[stop - 1])
         horizon = max(int(steps.max()), tail_end - stop)
         draws = np.zeros((n_draws, *steps.shape))
@@ -399,7 +402,7 @@ class BayesianVAR(BaseModel):
                                   horizon, n_draws, rng)
             j, k = np.nonzero(steps > 0)
             draws[:, j, k] = paths[:, steps[j, k] - 1, lay.columns[j]]
-        return self._output(draws, lay)
+        return draws
 
     def simulate(self, post: NIWPosterior, init: np.ndarray, tail: np.ndarray, horizon: int,
                  n_draws: int, rng: np.random.Generator) -> np.ndarray:

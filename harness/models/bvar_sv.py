@@ -71,13 +71,20 @@ from functools import partial
 
 import numpy as np
 import scipy.linalg as sla
-import xarray as xr
 from scipy.linalg import lapack
 
-from harness.models.base import BaseModel, ar1_scales, lag_design, per_variable, register
+from harness.models.base import (
+    BaseModel,
+    TargetLayout,
+    ar1_scales,
+    lag_design,
+    per_variable,
+    register,
+)
 from harness.models.bvar import ragged_split
 from harness.models.conditional import var_paths
-from vintages import InfoSet, Targets
+from harness.models.errors import ModelParameterError
+from harness.models.params import Interval, PerVariable
 
 __all__ = [
     "KSC_MEANS",
@@ -836,6 +843,19 @@ class BayesianVARSV(BaseModel):
 
     name = "bvar_sv"
     version = "1"
+    param_constraints = {
+        "lags": [Interval(int, 1, None)],
+        "tightness": [Interval(float, 0, None, closed="neither")],
+        "cross": [Interval(float, 0, None, closed="neither")],
+        "lag_decay": [Interval(float, 0, None)],
+        "prior_mean": [Interval(float), PerVariable(Interval(float))],
+        "a_prior_var": [Interval(float, 0, None, closed="neither")],
+        "vol_var_df": [Interval(float, 0, None, closed="neither")],
+        "vol_var_scale": [Interval(float, 0, None, closed="neither")],
+        "n_iter": [Interval(int, 1, None)],
+        "burn": [Interval(int, 0, None)],
+        "thin": [Interval(int, 1, None)],
+    }
 
     def __init__(self, lags: int = 4, tightness: float = 0.2, cross: float = 0.5,
                  lag_decay: float = 1.0, prior_mean: float | dict = 0.0, a_prior_var: float = 10.0,
@@ -853,21 +873,18 @@ class BayesianVARSV(BaseModel):
         self.burn = burn
         self.thin = thin
 
-    def _validate(self) -> None:
-        self._check_int("lags", self.lags, 1)
-        for p in ("tightness", "cross", "a_prior_var", "vol_var_df", "vol_var_scale"):
-            self._check_float(p, getattr(self, p))
-        self._check_float("lag_decay", self.lag_decay, positive=False)
-        n_iter = self._check_int("n_iter", self.n_iter, 1)
-        burn = self._check_int("burn", self.burn, 0)
-        thin = self._check_int("thin", self.thin, 1)
+    @classmethod
+    def check_params(cls, params: dict, model: str) -> None:
+        """At least one Gibbs draw must be kept after burn-in and thinning."""
+        n_iter, burn, thin = (int(params.get(k, d)) for k, d in (("n_iter", 1500), ("burn", 500),
+                                                                 ("thin", 1)))
         if (n_iter - burn) // thin < 1:
-            raise self._bad_param("n_iter", f"large enough to keep a draw after burn={burn} with "
-                                            f"thin={thin}", n_iter)
+            raise ModelParameterError(f"model {model!r}: parameter 'n_iter' must be large enough to "
+                                      f"keep a draw after burn={burn} with thin={thin}; got {n_iter}")
 
     def fit_sample(self, y: np.ndarray, variables: list[str], rng: np.random.Generator) -> SVPosterior:
         """Run the Gibbs sampler on a balanced sample ``(T, n)``; sets ``posterior_`` and ``diagnostics_``."""
-        self._validate()
+        self.validate()
         p = int(self.lags)
         if y.shape[0] < p + 3:
             raise self._fail(f"the balanced sample (all {len(variables)} variables observed) needs "
@@ -892,11 +909,9 @@ class BayesianVARSV(BaseModel):
                              "burn": int(self.burn), "thin": int(self.thin)}
         return post
 
-    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
-        self._validate()
-        lay = self._layout(info, targets, n_draws, rng)
+        lay, n_draws = layout, layout.n_draws
         start, stop, tail_end = ragged_split(lay.values)
         post = self.fit_sample(lay.values[start:stop], lay.variables, rng)
         steps = lay.steps(lay.ordinals[stop - 1])
@@ -907,7 +922,7 @@ class BayesianVARSV(BaseModel):
                                   lay.values[stop:tail_end], horizon, n_draws, rng)
             j, k = np.nonzero(steps > 0)
             draws[:, j, k] = paths[:, steps[j, k] - 1, lay.columns[j]]
-        return self._output(draws, lay)
+        return draws
 
     def simulate(self, post: SVPosterior, init: np.ndarray, tail: np.ndarray, horizon: int,
                  n_draws: int, rng: np.random.Generator) -> np.ndarray:

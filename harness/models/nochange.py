@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-import xarray as xr
 
-from harness.models.base import BaseModel, register, trailing_run
-from vintages import InfoSet, Targets
+from harness.models.base import BaseModel, TargetLayout, register
+from harness.models.params import Boolean, Options
 
 __all__ = ["NoChange"]
 
@@ -53,35 +52,31 @@ class NoChange(BaseModel):
 
     name = "nochange"
     version = "1"
+    param_constraints = {
+        "level": [Boolean()],
+        "mean": [Options("zero", "sample")],
+        "density": [Options("empirical", "gaussian")],
+    }
 
     def __init__(self, level: bool = True, mean: str = "zero", density: str = "gaussian"):
         self.level = level
         self.mean = mean
         self.density = density
 
-    def _validate(self) -> None:
-        if not isinstance(self.level, (bool, np.bool_)):
-            raise self._bad_param("level", "True or False", self.level)
-        self._check_choice("mean", self.mean, ("zero", "sample"))
-        self._check_choice("density", self.density, ("empirical", "gaussian"))
-
-    def forecast(self, info: InfoSet, targets: Targets, n_draws: int,
-                 rng: np.random.Generator) -> xr.DataArray:
+    def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
-        self._validate()
-        lay = self._layout(info, targets, n_draws, rng)
-        nv, nh = lay.observed.shape
+        n_draws = layout.n_draws
+        nv, nh = layout.observed.shape
         draws = np.zeros((n_draws, nv, nh))
-        runs = [trailing_run(lay.values[:, col]) for col in lay.columns]
-        for name, (start, stop) in zip(targets.variables, runs, strict=True):
+        runs, steps = layout.own_runs()
+        for name, (start, stop) in zip(layout.targets.variables, runs, strict=True):
             if stop - start < 2:
                 raise self._fail(f"variable {name!r} needs at least 2 observations, got {stop - start}")
-        steps = lay.steps(np.array([lay.ordinals[stop - 1] for _, stop in runs]))
         scales = {}
-        for j, col in enumerate(lay.columns):
+        for j, col in enumerate(layout.columns):
             start, stop = runs[j]
-            y = lay.values[start:stop, col]
-            name = targets.variables[j]
+            y = layout.values[start:stop, col]
+            name = layout.targets.variables[j]
             for k in np.flatnonzero(steps[j] > 0):
                 s = int(steps[j, k])
                 point, err = self._point_and_errors(y, s, name)
@@ -92,7 +87,7 @@ class NoChange(BaseModel):
                 else:
                     draws[:, j, k] = point + err[rng.integers(0, len(err), size=n_draws)]
         self.scales_ = scales
-        return self._output(draws, lay)
+        return draws
 
     def _point_and_errors(self, y: np.ndarray, s: int, name: str) -> tuple[float, np.ndarray]:
         """Point forecast ``s`` steps after the last value, and the in-sample errors of that rule."""
