@@ -106,12 +106,12 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
 
 def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print) -> dict:
     """spec → run (with progress) → scores → sensitivity → report; return the paths written."""
-    from harness.evaluate import evaluate, save
-    from harness.reporting import make_report
-    from harness.runner import run
-    from harness.sensitivity import sensitivity
+    from harness.backtest import run
+    from harness.evaluation import evaluate, save
+    from harness.evaluation.sensitivity import sensitivity
+    from harness.report.make import make_report
+    from harness.report.terminal import relative_text
     from harness.spec import load_spec
-    from harness.textable import relative_text
 
     spec = load_spec(spec_path)
     echo(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast")

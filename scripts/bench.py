@@ -40,8 +40,8 @@ def bench_runner(quick: bool = False) -> dict[str, float]:
     import numpy as np
     import pandas as pd
 
+    from harness.backtest import make_plan, run
     from harness.demo import write_demo_data
-    from harness.runner import make_plan, run
     from harness.spec import load_spec
     from vintages.store import VintageStore
 
@@ -67,8 +67,8 @@ def bench_runner(quick: bool = False) -> dict[str, float]:
         out["runner_speedup_2_vs_1"] = times[1] / times[2]
         out["runner_speedup_target"] = 1.7
         # rescoring the demo ledger under another truth, without refitting (target <= 5 s)
-        from harness.evaluate import evaluate
-        from harness.ledger import read_ledger
+        from harness.backtest.ledger import read_ledger
+        from harness.evaluation import evaluate
 
         t0 = time.perf_counter()
         led = read_ledger(tmp / "cold2")

@@ -1,8 +1,8 @@
-"""Benchmark of harness.scoring: score_all at scale, and CRPS paths side by side.
+"""Benchmark of harness.scores: score_all at scale, and CRPS paths side by side.
 
 Prints ``name: value`` lines. Figures:
 
-* ``score_all_seconds`` / ``score_all_peak_rss_gb``: :func:`harness.scoring.score_all` on
+* ``score_all_seconds`` / ``score_all_peak_rss_gb``: :func:`harness.scores.score_all` on
   100,000 forecasts x 2,000 float32 draws (targets: <= 30 s, <= 4 GB), one thread, measured in
   a fresh subprocess (peak RSS from ``resource.getrusage``; it includes the 0.8 GB input and the
   interpreter). ``score_all_2threads_seconds`` repeats it with two threads.
@@ -32,7 +32,7 @@ _CHILD = """
 import json, resource, sys, time
 import numpy as np
 sys.path.insert(0, {root!r})
-from harness.scoring import score_all
+from harness.scores import score_all
 rng = np.random.default_rng(20240601)
 draws = rng.standard_normal(({n}, {m}), dtype=np.float32)
 obs = rng.normal(0.0, 1.2, {n})
@@ -67,7 +67,7 @@ def run() -> dict[str, float]:
     """Run the scoring benchmark and return its figures (names as printed)."""
     from properscoring import _crps
 
-    from harness.scoring import crps_ensemble, crps_sorted
+    from harness.scores import crps_ensemble, crps_sorted
 
     out: dict[str, float] = {}
     one = _score_all_in_subprocess(1)

@@ -35,7 +35,7 @@ def run_cmd(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress output.")] = False,
 ) -> None:
     """Refit every model at every origin of SPEC (cached, resumable) and write the ledger."""
-    from harness.runner import make_plan, run
+    from harness.backtest import make_plan, run
     from harness.spec import load_spec
 
     s = load_spec(spec, out=out)
@@ -73,8 +73,8 @@ def score_cmd(
     score: Annotated[str, typer.Option(help="Score shown in the terminal tables (crps, se_mean, log_score, …).")] = "crps",
 ) -> None:
     """Score a run against a truth (no refitting) and print relative-score tables with tests."""
-    from harness.evaluate import evaluate, save, write_forecasts
-    from harness.textable import relative_text
+    from harness.evaluation import evaluate, save, write_forecasts
+    from harness.report.terminal import relative_text
 
     ev = evaluate(run_dir, truth)
     typer.echo(relative_text(ev, score))
@@ -103,7 +103,7 @@ def sensitivity_cmd(
     no_data: Annotated[bool, typer.Option("--no-data-check", help="Skip the pseudo-real-time rerun.")] = False,
 ) -> None:
     """How much does the verdict depend on data revisions? Truths side by side, real-time vs revised data."""
-    from harness.sensitivity import sensitivity
+    from harness.evaluation.sensitivity import sensitivity
     from harness.spec import load_spec
 
     s = load_spec(spec)
@@ -121,7 +121,7 @@ def report_cmd(
     truth: Annotated[str | None, typer.Option(help="Truth for the tables (default: the spec's).")] = None,
 ) -> None:
     """Write the self-contained HTML review report (plus Markdown, LaTeX and CSV tables)."""
-    from harness.reporting import make_report
+    from harness.report.make import make_report
 
     paths = make_report(run_dir, out=out, since=since, truth=truth, echo=typer.echo)
     typer.echo(f"report: {paths['html']}")

@@ -43,7 +43,7 @@ def new_releases(current, earlier, store=None) -> pd.DataFrame:
 
     Parameters
     ----------
-    current, earlier : harness.evaluate.Evaluation
+    current, earlier : harness.evaluation.Evaluation
         Their manifests' ``store_batches`` bound the range of new batches.
     store : VintageStore or path, optional
         Default: the store named in the current run's manifest, when it can be opened. Without a
@@ -87,7 +87,7 @@ def changes(current, earlier, store=None, *, threshold: float = DEFAULT_THRESHOL
 
     Parameters
     ----------
-    current, earlier : harness.evaluate.Evaluation
+    current, earlier : harness.evaluation.Evaluation
     store : VintageStore or path, optional
         Where to read the new release batches from (default: the current run's store).
     threshold : float

@@ -101,7 +101,7 @@ def headline(evaluation, variable, *, alpha: float = 0.10, score: str = "crps") 
 
     Parameters
     ----------
-    evaluation : harness.evaluate.Evaluation
+    evaluation : harness.evaluation.Evaluation
     variable : str
     alpha : float
         Significance level of the test.
@@ -512,18 +512,18 @@ def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_trut
 
     Parameters
     ----------
-    evaluation : harness.evaluate.Evaluation
+    evaluation : harness.evaluation.Evaluation
         The run scored under one truth.
     out_dir : path-like
         Created if needed; receives ``report.html``, ``tables/`` and ``figures/``.
-    sensitivity : harness.sensitivity.Sensitivity, optional
+    sensitivity : harness.evaluation.sensitivity.Sensitivity, optional
         Truth and data sensitivity tables; without it the section says it was not run.
-    ledger : harness.ledger.Ledger, optional
+    ledger : harness.backtest.Ledger, optional
         The run's draws, for the fan charts.
     fan_truths : dict of str to Evaluation, optional
         Outcomes drawn on the fan charts (e.g. ``{"first": ev_first, "latest": ev_latest}``);
         default the evaluation's own truth.
-    since : harness.evaluate.Evaluation, optional
+    since : harness.evaluation.Evaluation, optional
         The evaluation shown at the last review; adds the "What changed" section.
     title : str, optional
         Page title (default from the run's name).

@@ -128,7 +128,7 @@ def fluctuation_figure(evaluation, variable) -> bytes | None:
 
     Parameters
     ----------
-    evaluation : harness.evaluate.Evaluation
+    evaluation : harness.evaluation.Evaluation
     variable : str
 
     Returns
@@ -279,7 +279,7 @@ def fan_figure(ledger, variable, truths: dict[str, pd.Series], *, models=None, b
 
     Parameters
     ----------
-    ledger : harness.ledger.Ledger
+    ledger : harness.backtest.Ledger
     variable : str
     truths : dict
         Truth name → Series of outcomes indexed by target period label.

@@ -587,7 +587,7 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
 
     Parameters
     ----------
-    evaluation : harness.evaluate.Evaluation
+    evaluation : harness.evaluation.Evaluation
     scores : sequence of str
         Loss scores; ``se_mean`` is shown as the RMSE ratio (square root of the MSE ratio).
     subperiods : sequence of str, optional

@@ -9,7 +9,7 @@ tables the report shows are consistent with the forecasts (e.g. RMSE from square
 The comparison tests in the fixture are simple stand-ins with the right columns (the real ones
 live in :mod:`harness.compare`); the report only reads their p-values.
 
-Columns follow :class:`harness.evaluate.Evaluation`'s documented contract.
+Columns follow :class:`harness.evaluation.Evaluation`'s documented contract.
 """
 
 from __future__ import annotations
@@ -23,9 +23,9 @@ import properscoring as ps
 import xarray as xr
 from scipy import stats
 
-from harness.evaluate import Evaluation
-from harness.ledger import Ledger
-from harness.sensitivity import Sensitivity, ranking_swaps, revision_exposure
+from harness.backtest.ledger import Ledger
+from harness.evaluation import Evaluation
+from harness.evaluation.sensitivity import Sensitivity, ranking_swaps, revision_exposure
 
 SEED = 20260611
 QUANTILE_LEVELS = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)

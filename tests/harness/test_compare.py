@@ -175,7 +175,7 @@ def test_mcs_pvalues_equal_arch_given_the_same_resamples(statistic, method, seed
               seed=seed)
     ref.compute()
     idx = np.asarray(ref._bootstrap_indices)  # arch keeps them "for testing"
-    ours, _ = cp._mcs_pvalues(losses, idx, statistic)
+    ours, _ = cp.mcs._mcs_pvalues(losses, idx, statistic)
     np.testing.assert_allclose(ours, ref.pvalues.sort_index()["Pvalue"].to_numpy(), atol=1e-12)
 
 

@@ -15,9 +15,9 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
+from harness.backtest import make_plan, run
+from harness.backtest.ledger import read_ledger
 from harness.cli import app
-from harness.ledger import read_ledger
-from harness.runner import make_plan, run
 from harness.spec import load_spec
 from tests.harness.conftest import write_spec
 from vintages.store import VintageStore

@@ -5,9 +5,9 @@ from __future__ import annotations
 import pandas as pd
 from typer.testing import CliRunner
 
+from harness.backtest import run
 from harness.cli import app
-from harness.evaluate import evaluate
-from harness.runner import run
+from harness.evaluation import evaluate
 from harness.spec import load_spec
 from tests.harness.conftest import write_spec
 

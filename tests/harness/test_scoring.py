@@ -1,4 +1,4 @@
-"""Tests of harness.scoring against published formulas and reference libraries.
+"""Tests of harness.scores against published formulas and reference libraries.
 
 Sources used below:
 - Gneiting & Raftery (2007), JASA 102(477): kernel form of the CRPS (eq. 21) and the CRPS of a
@@ -27,7 +27,7 @@ from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 from scipy import integrate, stats
 
-from harness import scoring as sc
+from harness import scores as sc
 
 
 def _gaussian_crps(y, mu, sigma):
@@ -180,7 +180,7 @@ def test_guard_detects_properscoring_fallback_even_with_numba(monkeypatch):
 
     monkeypatch.setattr(_crps, "_crps_ensemble_vectorized", _raise_all_pairs)
     monkeypatch.setattr(_crps, "_crps_ensemble_core", _raise_all_pairs)
-    assert sc._properscoring_compiled() is None
+    assert sc.crps._properscoring_compiled() is None
     y, x = _case(seed=5)
     np.testing.assert_allclose(sc.crps_ensemble(y, x), sc.crps_sorted(y, x), rtol=0, atol=0)
 
@@ -209,7 +209,7 @@ def test_guard_in_fresh_interpreter_without_numba():
             raise SystemExit("all-pairs path called")
         _crps._crps_ensemble_vectorized = boom
         _crps._crps_ensemble_core = boom
-        from harness.scoring import crps_ensemble, crps_sorted
+        from harness.scores import crps_ensemble, crps_sorted
         rng = np.random.default_rng(0)
         y, x = rng.normal(size=30), rng.normal(size=(30, 50))
         assert np.array_equal(crps_ensemble(y, x), crps_sorted(y, x))
@@ -417,7 +417,8 @@ def test_score_all_equals_the_single_scores():
     out = sc.score_all(y, x, chunk_rows=7)
     expected_names = ["crps", "crps_centre", "crps_tails", "crps_left", "crps_right", "log_score",
                       "se_mean", "ae_mean", "se_median", "ae_median", "qs_05", "qs_10", "qs_25",
-                      "qs_50", "qs_75", "qs_90", "qs_95", "cover_50", "cover_70", "cover_90", "pit"]
+                      "qs_50", "qs_75", "qs_90", "qs_95", "cover_50", "cover_70", "cover_90",
+                      "interval_50", "interval_80", "pit"]
     assert list(out) == expected_names
     ref = {"crps": sc.crps_sorted(y, x), "log_score": sc.log_score(y, x), "pit": sc.pit(y, x)}
     for w in ("centre", "tails", "left", "right"):
@@ -429,6 +430,9 @@ def test_score_all_equals_the_single_scores():
     cov = sc.coverage(y, x)
     for j, c in enumerate(sc.DEFAULT_COVERAGE_LEVELS):
         ref[f"cover_{round(c * 100):02d}"] = cov[:, j]
+    isc = sc.interval_score(y, x, sc.DEFAULT_INTERVAL_LEVELS)
+    for j, c in enumerate(sc.DEFAULT_INTERVAL_LEVELS):
+        ref[f"interval_{round(c * 100):02d}"] = isc[:, j]
     for name in expected_names:
         np.testing.assert_allclose(out[name], ref[name], rtol=1e-12, atol=1e-14, err_msg=name)
         assert np.isnan(out[name][[2, 3]]).all(), name

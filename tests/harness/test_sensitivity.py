@@ -6,8 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from harness.ledger import read_ledger
-from harness.sensitivity import ranking_swaps, sensitivity, truth_sensitivity
+from harness.backtest.ledger import read_ledger
+from harness.evaluation.sensitivity import ranking_swaps, sensitivity, truth_sensitivity
 from harness.spec import load_spec
 from vintages.store import VintageStore
 

@@ -121,8 +121,8 @@ class Sensitivity:
 
 def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subperiod: str = "full"):
     """Score one ledger under several truths; return (ratio table, rankings, evaluations by truth)."""
-    from harness.evaluate import evaluate
-    from harness.ledger import Ledger, read_ledger
+    from harness.backtest.ledger import Ledger, read_ledger
+    from harness.evaluation import evaluate
     from vintages import VintageStore
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
@@ -153,8 +153,8 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
                      score: str = "crps"):
     """Rerun the spec in pseudo-real-time mode and compare scores with the real-time run."""
     from harness import compare
-    from harness.evaluate import evaluate, steps_ahead
-    from harness.runner import run
+    from harness.backtest import run
+    from harness.evaluation import evaluate, steps_ahead
 
     pseudo_spec = replace(spec, mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
                           cache=spec.cache_dir)
@@ -251,7 +251,7 @@ def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
 def sensitivity(spec, *, truths=None, run_dir=None, jobs=None, backend="loky", progress=False, log=None,
                 data: bool = True) -> Sensitivity:
     """Run all three checks for a spec whose real-time run exists (or is run now)."""
-    from harness.runner import run
+    from harness.backtest import run
 
     truths = tuple(truths or spec.scoring.get("truths") or DEFAULT_TRUTHS)
     if run_dir is None:

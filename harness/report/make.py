@@ -9,7 +9,7 @@ import pandas as pd
 
 def load_sensitivity(path: str | Path):
     """Read the CSV tables that :meth:`Sensitivity.save` wrote (None when absent)."""
-    from harness.sensitivity import Sensitivity
+    from harness.evaluation.sensitivity import Sensitivity
 
     path = Path(path)
     if not (path / "sensitivity_truths.csv").is_file():
@@ -30,8 +30,8 @@ def load_sensitivity(path: str | Path):
 
 def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, evaluation=None, echo=print) -> dict:
     """Evaluate ``run_dir`` and write its review report; return the written paths."""
-    from harness.evaluate import evaluate
-    from harness.ledger import read_ledger
+    from harness.backtest.ledger import read_ledger
+    from harness.evaluation import evaluate
     from harness.report import build_report
 
     run_dir = Path(run_dir)

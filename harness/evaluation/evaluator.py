@@ -2,23 +2,20 @@
 
 ``evaluate(run_dir, truth)`` reads the ledger, computes the truth of every target with the same
 transformation inside the truth's vintage (:func:`vintages.infoset.truth_values`), scores every
-forecast (:func:`harness.scoring.score_all`), assigns sub-periods by target period (full sample,
+forecast (:func:`harness.scores.score_all`), assigns sub-periods by target period (full sample,
 custom ranges, recession/expansion), aggregates, forms ratios to the benchmark, and runs the
 comparison and calibration tests (:mod:`harness.compare`).
 """
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from harness.ledger import Ledger, read_ledger
-
-HEADLINE = ("crps", "se_mean", "log_score")
+from harness.backtest.ledger import Ledger, read_ledger
 
 
 @dataclass
@@ -96,13 +93,15 @@ def regimes_for(manifest: dict, cube, periods: pd.PeriodIndex) -> tuple[pd.Serie
     lat = cube.latest(cube.freq_of(var)).sel(variable=var).to_series().dropna()
     if cube.freq_of(var) == "M":
         lat = lat.groupby(lat.index.asfreq("Q")).mean()
-    tp = harding_pagan(lat)
-    src = f"Harding–Pagan (2002) dating of {var} in the latest vintage"
+    tp = harding_pagan(lat, **{k: int(scoring[k]) for k in ("min_phase", "min_cycle") if k in scoring})
+    rules = ", ".join(f"{k} {scoring[k]}" for k in ("min_phase", "min_cycle") if k in scoring)
+    src = f"Harding–Pagan (2002) dating of {var} in the latest vintage" + (f" ({rules})" if rules else "")
     return regimes(tp, periods if freq == "Q" else periods.asfreq("Q")), src, tp
 
 
-def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, cube=None, dm_scores=HEADLINE,
-             fluctuation_window: float = 0.3, tests: bool = True) -> Evaluation:
+def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, cube=None,
+             dm_scores=None, tests: bool = True, seed: int | None = None,
+             test_settings: dict | None = None) -> Evaluation:
     """Score a run against one truth rule.
 
     Parameters
@@ -117,15 +116,24 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     cube : Cube, optional
         The store's cube, when the caller already built it (scoring one run under several
         truths needs it once).
+    dm_scores : sequence of str, optional
+        Restrict the pairwise tests to these score columns (default: every score whose
+        declaration lists the test).
     tests : bool
         Run the comparison and calibration tests (False: scores and tables only).
+    seed : int, optional
+        Seed of the random tests (bootstraps), spawned per test and cell; default the run's
+        spec seed.
+    test_settings : dict, optional
+        ``{test name: {setting: value}}`` overriding the registered defaults (e.g. the number
+        of bootstrap replications); default the spec's ``[scoring.tests]``.
 
     Returns
     -------
     Evaluation
     """
-    from harness import compare
-    from harness.scoring import aggregate, assign_subperiods, common_sample, relative_to, score_all
+    from harness.evaluation import cells
+    from harness.scores import aggregate, assign_subperiods, common_sample, relative_to, score_all
     from vintages import VintageStore, parse_truth
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
@@ -153,6 +161,8 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
         kw["quantile_levels"] = tuple(scoring["quantile_levels"])
     if "coverage_levels" in scoring:
         kw["coverage_levels"] = tuple(scoring["coverage_levels"])
+    if "interval_levels" in scoring:
+        kw["interval_levels"] = tuple(scoring["interval_levels"])
     # draws are stored as float32: compare them with the truth at the same resolution, so that a
     # forecast equal to an already published value scores exactly zero error
     obs = fc["truth"].to_numpy(dtype=np.float64).astype(np.float32).astype(np.float64)
@@ -178,149 +188,14 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     table = aggregate(common, ("model", "variable", "horizon"), score_columns=score_cols)
     relative = relative_to(table, benchmark)
     if tests:
-        dm = _dm_tests(fc, benchmark, dm_scores, compare)
-        mcs = _mcs(fc, compare)
-        calib = _calibration(fc, scores, compare)
-        fluct = _fluctuation(fc, benchmark, compare, fluctuation_window)
+        seed = int(man.get("seed", 0)) if seed is None else int(seed)
+        settings = test_settings if test_settings is not None else scoring.get("tests", {})
+        dm = cells.pairwise_tests(fc, benchmark, seed=seed, settings=settings, scores=dm_scores)
+        mcs = cells.set_tests(fc, seed=seed, settings=settings)
+        calib = cells.calibration_tests(fc, seed=seed, settings=settings)
+        fluct = cells.stability_tests(fc, benchmark, seed=seed, settings=settings)
     else:
         dm = mcs = calib = fluct = pd.DataFrame()
     names = ["full"] + list(sub) + ["recession", "expansion"]
     return Evaluation(Path(ledger.run_dir), truth, benchmark, fc, table, relative, dm, mcs, calib, fluct, reg,
                       chron_src, tps, names, man)
-
-
-def steps_ahead(h) -> int:
-    """Steps ahead for the tests' HAC lags: h + 1 periods separate origin and target at horizon h ≥ 0
-    (the origin's own period is not yet observed); backcasts count as one step."""
-    return max(int(h) + 1, 1)
-
-
-def _panels(g: pd.DataFrame, scores, benchmark: str):
-    """Per (variable, horizon) group: origins, target periods, sub-period sets and loss arrays (origin × model)."""
-    g = g.sort_values("origin")
-    origins = np.sort(pd.unique(g["origin"]))
-    oi = np.searchsorted(origins, g["origin"].to_numpy())
-    models = list(pd.unique(g["model"]))
-    mi = pd.Index(models).get_indexer(g["model"])
-    arrays = {}
-    for sc in scores:
-        if sc in g:
-            arr = np.full((len(origins), len(models)), np.nan)
-            arr[oi, mi] = g[sc].to_numpy(dtype=np.float64)
-            arrays[sc] = arr
-    first = g.drop_duplicates("origin")
-    tps = first.set_index("origin").reindex(origins)
-    return origins, tps["target_period"].to_numpy(), tps["subperiods"].to_list(), models, arrays
-
-
-def _dm_tests(fc, benchmark, dm_scores, compare) -> pd.DataFrame:
-    rows = []
-    subs = [s for s in dict.fromkeys(x for ss in fc["subperiods"] for x in ss)]
-    for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-        origins, _, sublists, models, arrays = _panels(g, dm_scores, benchmark)
-        if benchmark not in models:
-            continue
-        masks = {sname: np.array([sname in (sl if isinstance(sl, list) else []) for sl in sublists]) for sname in subs}
-        jb = models.index(benchmark)
-        for score, arr in arrays.items():
-            for j, model in enumerate(models):
-                if model == benchmark:
-                    continue
-                pair_ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
-                for sname, mask in masks.items():
-                    sel = pair_ok & mask
-                    n = int(sel.sum())
-                    row = dict(model=model, variable=var, horizon=h, subperiod=sname, score=score, n=n,
-                               stat=np.nan, pvalue=np.nan, mean_diff=np.nan)
-                    if n >= 4:
-                        r = compare.diebold_mariano(arr[sel, j], arr[sel, jb], h=steps_ahead(h))
-                        row.update(n=r.n, stat=r.stat, pvalue=r.pvalue, mean_diff=r.mean_diff)
-                    rows.append(row)
-    return pd.DataFrame(rows)
-
-
-def _mcs(fc, compare, score="crps", alpha=0.10) -> pd.DataFrame:
-    rows = []
-    for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-        wide = g.pivot_table(index="origin", columns="model", values=score).dropna()
-        if wide.shape[0] < 10 or wide.shape[1] < 2:
-            continue
-        res = compare.model_confidence_set(wide, alpha=alpha, block_len=max(steps_ahead(h), 2), n_boot=1000,
-                                           seed=20261201)
-        pvals = np.asarray(res.pvalues)
-        for j, m in enumerate(wide.columns):
-            rows.append(dict(variable=var, horizon=h, model=m, in_mcs=m in res.included, pvalue=float(pvals[j]),
-                             n=res.n, alpha=alpha))
-    return pd.DataFrame(rows)
-
-
-def _calibration(fc, scores, compare) -> pd.DataFrame:
-    rows = []
-    cover_cols = [c for c in scores if c.startswith("cover_")]
-    for (model, var, h), g in fc.groupby(["model", "variable", "horizon"], sort=True):
-        g = g.sort_values("origin")
-        pit = g["pit"].to_numpy()
-        pit = pit[np.isfinite(pit)]
-        row = dict(model=model, variable=var, horizon=h, n=len(pit))
-        for c in cover_cols:
-            hits = g[c].to_numpy()
-            hits = hits[np.isfinite(hits)].astype(int)
-            lvl = int(c.split("_")[1]) / 100
-            row[f"{c}_rate"] = hits.mean() if len(hits) else np.nan
-            if len(hits) >= 8:
-                k = compare.kupiec(hits, lvl)
-                ch = compare.christoffersen(hits, lvl)
-                row[f"{c}_kupiec_p"] = k.p_uc
-                row[f"{c}_christoffersen_p"] = ch.p_cc
-        if len(pit) >= 8:
-            row["berkowitz_p"] = compare.berkowitz(pit).pvalue
-            rs = compare.rossi_sekhposyan(pit, h=steps_ahead(h), n_boot=499, seed=20261201)
-            row["rs_p"] = rs.ks_pvalue
-            row["rs_cvm_p"] = rs.cvm_pvalue
-        row["pit_hist"] = ";".join(str(int(x)) for x in compare.pit_histogram(pit, bins=10))
-        rows.append(row)
-    return pd.DataFrame(rows)
-
-
-def _fluctuation(fc, benchmark, compare, mu) -> pd.DataFrame:
-    rows = []
-    for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-        origins, tps, _, models, arrays = _panels(g, ["crps"], benchmark)
-        if benchmark not in models or "crps" not in arrays:
-            continue
-        arr, jb = arrays["crps"], models.index(benchmark)
-        for j, model in enumerate(models):
-            if model == benchmark:
-                continue
-            ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
-            if ok.sum() < 20:
-                continue
-            r = compare.fluctuation_test(arr[ok, j], arr[ok, jb], mu=mu, alpha=0.05, h=steps_ahead(h))
-            ends = tps[ok][np.asarray(r.window_end, dtype=int)]
-            for t, val in zip(ends, r.path, strict=True):
-                rows.append(dict(model=model, variable=var, horizon=h, target_period=t, stat=float(val),
-                                 critical=float(r.critical_value), reject=bool(r.reject)))
-    return pd.DataFrame(rows)
-
-
-def write_forecasts(ev: Evaluation, path: str | Path) -> Path:
-    """Write the per-forecast scores as CSV (sub-periods joined by ';'), atomically."""
-    path = Path(path)
-    f = ev.forecasts.assign(subperiods=ev.forecasts["subperiods"].map(";".join))
-    tmp = path.with_name(path.name + ".tmp")
-    f.to_csv(tmp, index=False)
-    tmp.replace(path)
-    return path
-
-
-def save(ev: Evaluation, path: str | Path) -> Path:
-    """Write the evaluation's tables as CSV files under ``path`` (a directory)."""
-    path = Path(path)
-    path.mkdir(parents=True, exist_ok=True)
-    write_forecasts(ev, path / "forecast_scores.csv")
-    for name in ("table", "relative", "tests", "mcs", "calibration", "fluctuation"):
-        getattr(ev, name).to_csv(path / f"{name}.csv", index=False)
-    (path / "evaluation.json").write_text(json.dumps({"truth": ev.truth, "benchmark": ev.benchmark,
-                                                      "chronology": ev.chronology_source,
-                                                      "subperiods": ev.subperiod_names}, indent=1) + "\n")
-    return path

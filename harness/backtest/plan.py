@@ -1,0 +1,139 @@
+"""The plan of a run: origins, information sets, targets, models and the task keys (no computing yet).
+
+The driver builds the cube once and the information set of every origin in one vectorised pass
+(:func:`vintages.build_infosets`); each task (one model at one origin) gets a deterministic seed
+key and a cache key, so that a rerun computes only what is missing.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import inspect
+import json
+import sys
+import time
+import zlib
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from harness.backtest.ledger import failure_path, task_path
+from harness.spec import Spec
+
+
+@dataclass
+class Task:
+    """One model refit at one origin."""
+
+    model: str
+    origin: np.datetime64
+    key: str
+    seed_key: tuple[int, int]
+    index: int  # position of the origin in the plan
+
+
+@dataclass
+class Plan:
+    """Everything a run needs, resolved: origins, information sets, targets, model objects, tasks."""
+
+    spec: Spec
+    store_checksum: str
+    origins: np.ndarray
+    infos: list
+    targets: list
+    models: dict
+    tasks: list[Task]
+    timings: dict = field(default_factory=dict)
+    store_batches: int = 0
+
+    def explain(self) -> str:
+        """A human-readable description of the resolved plan (``harness run --explain``)."""
+        s = self.spec
+        cache = s.cache_dir
+        done = sum(task_path(cache, t.key).is_file() for t in self.tasks)
+        failed = sum(failure_path(cache, t.key).is_file() and not task_path(cache, t.key).is_file()
+                     for t in self.tasks)
+        lines = [
+            f"spec        {s.path} (hash {s.hash()[:12]})",
+            f"store       {s.store} (checksum {self.store_checksum[:12]})",
+            f"mode        {s.mode}; ragged edge policy {s.policy}; panel frequency {s.freq}",
+            f"origins     {len(self.origins)}: {self.origins[0]} … {self.origins[-1]}" if len(self.origins) else
+            "origins     none",
+            "variables   " + ", ".join(f"{k} ({v['transform']}{', ' + v['convert'] if 'convert' in v else ''})"
+                                        for k, v in s.variables.items()),
+            f"targets     {', '.join(s.targets)} at horizons {s.horizons[0]}…{s.horizons[-1]}"
+            f" (h<0 backcast, 0 nowcast, >0 forecast)",
+            "models      " + "; ".join(f"{m.name} = {m.type} {json.dumps(m.params) if m.params else ''}".strip()
+                                        for m in s.models),
+            f"draws       {s.draws} per forecast; seed {s.seed}",
+            f"tasks       {len(self.tasks)} ({len(s.models)} models × {len(self.origins)} origins): "
+            f"{done} cached, {failed} failed before, {len(self.tasks) - done - failed} to compute",
+            f"run dir     {s.out}",
+        ]
+        if len(self.infos):
+            first = self.infos[-1]
+            edge = ", ".join(f"{v} {first.last_observed[v]}" for v in first.variables)
+            lines.append(f"ragged edge at {self.origins[-1]}: {edge}")
+        return "\n".join(lines)
+
+
+def _model_code_hash(cls) -> str:
+    try:
+        src = inspect.getsource(sys.modules[cls.__module__])
+    except (OSError, TypeError, KeyError):
+        src = cls.__qualname__
+    return hashlib.sha256(src.encode()).hexdigest()[:16]
+
+
+def seed_key(model: str, origin: np.datetime64) -> tuple[int, int]:
+    """The stable spawn key of a (model label, origin) pair."""
+    return (zlib.crc32(model.encode()), int(np.datetime64(origin, "D").astype(np.int64)))
+
+
+def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
+    payload = {
+        "type": model_spec.type,
+        "class": f"{model_cls.__module__}:{model_cls.__qualname__}",
+        "params": model_spec.params,
+        "version": str(getattr(model_cls, "version", "0")),
+        "code": _model_code_hash(model_cls),
+        "data": info.data_hash(),
+        "policy": info.policy,
+        "transforms": info.transforms,
+        "targets": [list(targets.variables), list(targets.horizons), str(targets.current)],
+        "draws": spec.draws,
+        "seed": spec.seed,
+        "seed_key": list(skey),
+    }
+    return hashlib.sha256(json.dumps(payload, sort_keys=True, default=str).encode()).hexdigest()[:32]
+
+
+def make_plan(spec: Spec) -> Plan:
+    """Resolve a spec: open the store, schedule origins, build information sets, key every task."""
+    from harness.models.base import get_model_class
+    from vintages import VintageStore, build_infosets, check_origins, make_targets, parse_schedule
+
+    t0 = time.perf_counter()
+    store = VintageStore(spec.store)
+    missing = [v for v in spec.variables if v not in store.variables]
+    if missing:
+        from harness.errors import SpecError
+
+        raise SpecError(f"{spec.path}: [variables] {missing} not in the store {spec.store}; "
+                        f"it holds: {', '.join(sorted(store.variables))}")
+    cube = store.cube(variables=list(spec.variables))
+    origins = check_origins(cube, parse_schedule(spec.origins, cube=cube))
+    t1 = time.perf_counter()
+    infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
+    targets = [make_targets(info, spec.targets, spec.horizons, spec.freq) for info in infos]
+    t2 = time.perf_counter()
+    models, tasks = {}, []
+    for ms in spec.models:
+        cls = get_model_class(ms.type)
+        models[ms.name] = cls(**ms.params)
+        for i, (o, info, tg) in enumerate(zip(origins, infos, targets, strict=True)):
+            sk = seed_key(ms.name, o)
+            tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk), sk, i))
+    return Plan(spec, store.checksum(), origins, infos, targets, models, tasks,
+                {"store_and_origins": t1 - t0, "infosets": t2 - t1, "keys": time.perf_counter() - t2},
+                store_batches=len(store.manifest()["batches"]))

@@ -1,0 +1,186 @@
+"""The backtest runner: tasks = model × origin, refit in parallel, seeded, cached, resumable.
+
+Data flow: the spec names a store; the cube is built once in the driver; the information set of
+every origin is built there in one vectorised pass (:func:`vintages.infoset.build_infosets`) and
+shipped with its task, so workers never read the store. Each task is sent through
+``joblib.Parallel`` — loky locally, or dask.distributed via joblib's dask backend — to a
+module-level worker that returns a small record (status, timing, traceback on failure) and
+writes the draws to the cache itself, atomically.
+
+Determinism: every task draws from ``numpy.random.SeedSequence(spec.seed, spawn_key=(crc32(model
+label), origin day))``; BLAS is limited to one thread inside a task; results are therefore the
+same whatever the backend, the number of workers or the order of completion.
+
+Cache: a task's key hashes the model's type, parameters, declared version and source code, the
+information set's data, the targets, the number of draws and the seed key. A completed key is
+never recomputed; a failed key is rerun only with ``retry_failed``.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import platform
+import shutil
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+from harness.backtest.dispatch import _dispatch
+from harness.backtest.ledger import assemble, failure_path, task_path
+from harness.backtest.plan import Plan, make_plan
+from harness.backtest.progress import Progress
+from harness.spec import Spec
+
+BACKENDS = ("dask", "loky", "sequential", "threading")
+
+
+@dataclass
+class RunResult:
+    """What a run did: counts, timings, failures, and where the ledger is."""
+
+    run_dir: Path
+    total: int
+    computed: int
+    cached: int
+    failed: list[dict]
+    timings: dict
+    manifest: dict
+
+    @property
+    def ok(self) -> bool:
+        return not self.failed
+
+    def summary(self) -> str:
+        s = (f"{self.total} tasks: {self.computed} computed, {self.cached} from cache, {len(self.failed)} failed "
+             f"in {self.timings.get('total', 0):.1f}s; ledger in {self.run_dir}")
+        if self.failed:
+            lines = [s, "failures:"]
+            for f in self.failed[:20]:
+                lines.append(f"  {f['model']} @ {f['origin']}: {f['error']}")
+            if len(self.failed) > 20:
+                lines.append(f"  … and {len(self.failed) - 20} more (see {self.run_dir / 'run.json'})")
+            lines.append("rerun with --retry-failed to retry only these")
+            return "\n".join(lines)
+        return s
+
+
+def _versions() -> dict:
+    out = {"python": platform.python_version()}
+    for name in ("numpy", "scipy", "pandas", "xarray", "pyarrow", "joblib", "properscoring", "numba"):
+        try:
+            out[name] = __import__(name).__version__
+        except Exception:  # a missing optional package is recorded as such
+            out[name] = None
+    try:
+        from importlib.metadata import version
+
+        out["vintage-harness"] = version("vintage-harness")
+    except Exception:
+        out["vintage-harness"] = None
+    return out
+
+
+def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler: str | None = None,
+        retry_failed: bool = False, progress: bool = True, log=None, plan: Plan | None = None) -> RunResult:
+    """Run (or resume) a backtest.
+
+    Parameters
+    ----------
+    spec : Spec
+        From :func:`harness.spec.load_spec`.
+    jobs : int, optional
+        Number of parallel workers (default: all cores).
+    backend : {"loky", "dask", "threading", "sequential"}
+        joblib backend; ``dask`` uses a dask.distributed cluster at ``scheduler`` (an address),
+        or a local cluster of ``jobs`` worker processes when no address is given.
+    retry_failed : bool
+        Recompute tasks whose earlier attempt failed (by default a failed key is reported again).
+    progress : bool
+        Show a progress bar (terminal) or log lines (elsewhere).
+
+    Returns
+    -------
+    RunResult
+    """
+    if backend not in BACKENDS:
+        raise ValueError(f"unknown backend {backend!r}; expected one of {', '.join(sorted(BACKENDS))}")
+    say = log or (lambda msg: print(msg, file=sys.stderr))
+    t_start = time.perf_counter()
+    given_plan = plan is not None
+    plan = plan or make_plan(spec)
+    out = spec.out
+    cache = spec.cache_dir
+    out.mkdir(parents=True, exist_ok=True)
+    cache.mkdir(parents=True, exist_ok=True)
+    if spec.path.is_file() and spec.path.resolve() != (out / "spec.toml").resolve():
+        shutil.copyfile(spec.path, out / "spec.toml")
+
+    records: dict[str, dict] = {}
+    todo = []
+    for t in plan.tasks:
+        base = {"model": t.model, "origin": str(t.origin), "key": t.key}
+        if task_path(cache, t.key).is_file():
+            records[t.key] = dict(base, status="ok", cached=True)
+        elif failure_path(cache, t.key).is_file() and not retry_failed:
+            old = json.loads(failure_path(cache, t.key).read_text())
+            records[t.key] = dict(old, cached=True)
+        else:
+            todo.append(t)
+    # origin-major order: slow and fast models interleave, so workers stay busy to the end
+    todo.sort(key=lambda t: (t.index, t.model))
+    n_cached = len(records)
+    say(f"run {spec.name}: {len(plan.tasks)} tasks, {n_cached} from cache, {len(todo)} to compute "
+        f"(backend {backend}, jobs {jobs or os.cpu_count()})")
+    bar = Progress(len(plan.tasks), n_cached, enabled=progress)
+    bar.start()
+    t_run = time.perf_counter()
+    if todo:
+        for rec in _dispatch(plan, todo, jobs=jobs, backend=backend, scheduler=scheduler):
+            rec["cached"] = False
+            records[rec["key"]] = rec
+            bar.update(rec["status"] == "ok")
+    bar.close()
+    t_assemble = time.perf_counter()
+    ordered = [records[t.key] for t in plan.tasks]
+    assemble(out, cache, ordered)
+    failures = [{k: r.get(k) for k in ("model", "origin", "key", "error", "traceback")}
+                for r in ordered if r.get("status") != "ok"]
+    computed = sum(1 for r in ordered if not r.get("cached"))
+    t_end = time.perf_counter()
+    plan_time = sum(plan.timings.values()) if given_plan else 0.0  # else already inside t_start..t_end
+    timings = dict(plan.timings, dispatch=t_assemble - t_run, assemble=t_end - t_assemble,
+                   total=t_end - t_start + plan_time)
+    manifest = {
+        "name": spec.name,
+        "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+        "spec": str(spec.path),
+        "spec_hash": spec.hash(),
+        "store": str(spec.store),
+        "store_checksum": plan.store_checksum,
+        "store_batches": plan.store_batches,
+        "mode": spec.mode,
+        "policy": spec.policy,
+        "freq": spec.freq,
+        "seed": spec.seed,
+        "draws": spec.draws,
+        "models": [m.name for m in spec.models],
+        "model_specs": {m.name: {"type": m.type, "params": m.params} for m in spec.models},
+        "origins": [str(o) for o in plan.origins],
+        "targets": list(spec.targets),
+        "horizons": list(spec.horizons),
+        "target_periods": [[str(p) for p in tg.periods()] for tg in plan.targets],
+        "variables": spec.variables,
+        "scoring": {k: v for k, v in spec.scoring.items()},
+        "backend": backend,
+        "jobs": jobs or os.cpu_count(),
+        "counts": {"total": len(ordered), "computed": computed, "cached": len(ordered) - computed,
+                   "failed": len(failures)},
+        "tasks": [{k: r.get(k) for k in ("model", "origin", "key", "status", "elapsed", "cached")} for r in ordered],
+        "failures": failures,
+        "timings": timings,
+        "versions": _versions(),
+    }
+    (out / "run.json").write_text(json.dumps(manifest, indent=1, default=str) + "\n")
+    return RunResult(out, len(ordered), computed, len(ordered) - computed, failures, timings, manifest)

@@ -1,0 +1,189 @@
+"""The built-in score declarations (see :mod:`harness.scores.registry`), each next to its rule.
+
+Every ``compute`` below reads a :class:`harness.scores.fused.Chunk` (rows sorted once) and uses
+the same kernels as the public rule named in its declaration; the tests check each fused column
+against that rule.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from harness.scores.kernels import (
+    _coverage_hits,
+    _crps_from_sorted,
+    _log_score_from_sorted,
+    _midpoint_levels,
+    _pit_from_sorted,
+    _silverman,
+    _weighted_from_quantiles,
+)
+from harness.scores.quantiles import interval_score_from_q
+from harness.scores.registry import Score, ScoreConfig, _level_name, register_score
+
+_GR2007 = ("Gneiting, T. and Raftery, A. E. (2007). Strictly proper scoring rules, prediction, and "
+           "estimation. JASA 102(477), 359-378")
+_GR2011 = ("Gneiting, T. and Ranjan, R. (2011). Comparing density forecasts using threshold- and "
+           "quantile-weighted scoring rules. JBES 29(3), 411-422")
+
+
+def _grid(cfg: ScoreConfig) -> np.ndarray:
+    return _midpoint_levels(int(cfg.n_levels))
+
+
+def _ends(levels) -> np.ndarray:
+    c = np.asarray(levels, dtype=np.float64)
+    return np.concatenate([(1 - c) / 2, (1 + c) / 2])
+
+
+def _none(cfg: ScoreConfig) -> np.ndarray:
+    return np.zeros(0)
+
+
+# ----------------------------------------------------------------------------- density scores
+register_score(Score(
+    key="crps", label="CRPS", relative_label="CRPS ratio", unit="units of the variable",
+    orientation="lower", versus="ratio", tests=("dm", "mcs", "fluctuation"),
+    roles=frozenset({"headline", "density"}),
+    reference=f"{_GR2007}, eq. 21 (kernel form, exact for the ensemble)",
+    needs=_none,
+    compute=lambda ch, cfg: {"crps": _crps_from_sorted(ch.s, ch.y, ch.k, ch.full)},
+))
+
+
+def _weighted(weight: str):
+    def compute(ch, cfg):
+        grid = _grid(cfg)
+        return {f"crps_{weight}": _weighted_from_quantiles(ch.pinball(grid), grid, weight)}
+    return compute
+
+
+for _w, _label, _roles in (("centre", "centre-weighted CRPS", {"density"}),
+                           ("tails", "two-tail CRPS", {"tail"}),
+                           ("left", "left-tail CRPS", {"tail"}),
+                           ("right", "right-tail CRPS", {"tail"})):
+    register_score(Score(
+        key=f"crps_{_w}", label=_label, relative_label=f"{_label} ratio",
+        unit="units of the variable", orientation="lower", versus="ratio", tests=("dm",),
+        roles=frozenset(_roles),
+        reference=f"{_GR2011} (quantile-weighted CRPS, weight '{_w}', unnormalised, midpoint rule)",
+        needs=_grid, compute=_weighted(_w),
+    ))
+
+
+def _log_score(ch, cfg):
+    h = _silverman(ch.s, ch.k, ch.full, ch.mean)
+    return {"log_score": _log_score_from_sorted(ch.s, ch.y, ch.k, ch.full, h, cfg.density_floor)}
+
+
+register_score(Score(
+    key="log_score", label="log score", relative_label="log-score difference",
+    unit="nats (negative log density)", orientation="lower", versus="difference", tests=("dm",),
+    roles=frozenset({"headline", "density"}),
+    reference=(f"{_GR2007} (logarithmic score); Silverman, B. W. (1986). Density Estimation for "
+               "Statistics and Data Analysis, eq. 3.31 (kernel bandwidth)"),
+    needs=lambda cfg: np.array([0.25, 0.75]), compute=_log_score,
+))
+
+
+# ----------------------------------------------------------------------------- point errors
+def _point(kind: str, err: str):
+    def compute(ch, cfg):
+        centre = ch.mean if kind == "mean" else ch.median
+        e = centre - ch.y
+        return {f"{err}_{kind}": e * e if err == "se" else np.abs(e)}
+    return compute
+
+
+for _kind in ("mean", "median"):
+    register_score(Score(
+        key=f"se_{_kind}", label=f"MSE ({_kind})" if _kind == "median" else "MSE",
+        relative_label=f"RMSE ratio ({_kind})" if _kind == "median" else "RMSE ratio",
+        unit="squared units of the variable", orientation="lower", versus="sqrt_ratio",
+        tests=("dm",), roles=frozenset({"point"} | ({"headline"} if _kind == "mean" else set())),
+        reference="common practice (squared error of the ensemble's point forecast); the RMSE "
+                  "ratio is the square root of the MSE ratio",
+        needs=lambda cfg: np.array([0.5]), compute=_point(_kind, "se"),
+    ))
+    register_score(Score(
+        key=f"ae_{_kind}", label=f"MAE ({_kind})" if _kind == "median" else "MAE",
+        relative_label=f"MAE ratio ({_kind})" if _kind == "median" else "MAE ratio",
+        unit="units of the variable", orientation="lower", versus="ratio", tests=("dm",),
+        roles=frozenset({"point"}),
+        reference="common practice (absolute error of the ensemble's point forecast)",
+        needs=lambda cfg: np.array([0.5]), compute=_point(_kind, "ae"),
+    ))
+
+
+# ----------------------------------------------------------------------------- quantiles and intervals
+def _qs(ch, cfg):
+    lev = np.asarray(cfg.quantile_levels, dtype=np.float64)
+    qs = ch.pinball(lev)
+    return {_level_name("qs_{pct}", a, "quantile_levels"): qs[:, j] for j, a in enumerate(lev)}
+
+
+register_score(Score(
+    key="qs", label="QS {pct}%", relative_label="QS {pct}% ratio", unit="units of the variable",
+    orientation="lower", versus="ratio", tests=("dm",), roles=frozenset({"quantile"}),
+    reference=f"{_GR2011}, eq. 3 (pinball loss, scaled so that CRPS = 2 × its integral)",
+    pattern="qs_{pct}", config_levels="quantile_levels",
+    needs=lambda cfg: np.asarray(cfg.quantile_levels, dtype=np.float64), compute=_qs,
+    level_roles=lambda a: {"tail"} if (a <= 0.10 + 1e-12 or a >= 0.90 - 1e-12) else set(),
+))
+
+
+def _cover(ch, cfg):
+    lev = np.asarray(cfg.coverage_levels, dtype=np.float64)
+    q = ch.quantiles(_ends(lev))
+    hits = _coverage_hits(ch.y, q[:, : lev.size], q[:, lev.size:])
+    return {_level_name("cover_{pct}", a, "coverage_levels"): hits[:, j] for j, a in enumerate(lev)}
+
+
+register_score(Score(
+    key="cover", label="coverage of the {pct}% interval", relative_label="coverage {pct}%",
+    unit="share of outcomes inside", orientation="calibration", versus=None,
+    tests=("kupiec", "christoffersen"), roles=frozenset({"calibration"}),
+    reference="common practice (hit indicator of the closed central interval); tests: Kupiec "
+              "(1995), Christoffersen (1998)",
+    pattern="cover_{pct}", config_levels="coverage_levels",
+    needs=lambda cfg: _ends(cfg.coverage_levels), compute=_cover,
+))
+
+
+def _interval(ch, cfg):
+    lev = np.asarray(cfg.interval_levels, dtype=np.float64)
+    q = ch.quantiles(_ends(lev))
+    out = {}
+    for j, c in enumerate(lev):
+        out[_level_name("interval_{pct}", c, "interval_levels")] = interval_score_from_q(
+            ch.y, q[:, j], q[:, lev.size + j], 1.0 - c)
+    return out
+
+
+register_score(Score(
+    key="interval", label="interval score {pct}%", relative_label="interval score {pct}% ratio",
+    unit="units of the variable", orientation="lower", versus="ratio", tests=("dm",),
+    roles=frozenset({"interval"}),
+    reference=f"{_GR2007}, eq. 43 (interval score of the central interval at level 1 - alpha)",
+    pattern="interval_{pct}", config_levels="interval_levels",
+    needs=lambda cfg: _ends(cfg.interval_levels), compute=_interval,
+))
+
+
+register_score(Score(
+    key="pit", label="PIT", relative_label="PIT", unit="probability", orientation="calibration",
+    versus=None, tests=("berkowitz", "rossi_sekhposyan"), roles=frozenset({"calibration"}),
+    reference=("Gneiting, T., Balabdaoui, F. and Raftery, A. E. (2007). Probabilistic forecasts, "
+               "calibration and sharpness. JRSS B 69(2), 243-268 (mid-rank ties)"),
+    needs=_none,
+    compute=lambda ch, cfg: {"pit": _pit_from_sorted(ch.s, ch.y, ch.k, "mid", None)},
+))
+
+# Threshold-weighted CRPS needs a threshold per forecast: users compute it with
+# harness.scores.threshold_weighted_crps and add columns named twcrps or twcrps_<name>.
+register_score(Score(
+    key="twcrps", label="threshold-weighted CRPS", relative_label="twCRPS ratio",
+    unit="units of the variable", orientation="lower", versus="ratio", tests=("dm",),
+    roles=frozenset({"tail"}),
+    reference=f"{_GR2011}; Allen, Ginsbourger & Ziegel (2023), SIAM/ASA JUQ 11(3), 906-940",
+))
