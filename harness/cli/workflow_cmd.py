@@ -18,6 +18,15 @@ class Backend(str, Enum):
     sequential = "sequential"
 
 
+def _score_choices() -> str:
+    # read from the score registry (imports nothing numerical)
+    from harness.scores.registry import columns
+
+    return ", ".join(c.name for c in columns() if c.is_loss)
+
+
+_SCORE_CHOICES = _score_choices()
+
 SpecArg = Annotated[Path, typer.Argument(help="The backtest spec (TOML).")]
 RunArg = Annotated[Path, typer.Argument(help="A run directory written by 'harness run'.")]
 
@@ -70,9 +79,16 @@ def score_cmd(
                                               "asof:YYYY-MM-DD (default: the spec's).")] = None,
     out: Annotated[Path | None, typer.Option(help="Write the per-forecast scores to this CSV file "
                                              "(tables beside it).")] = None,
-    score: Annotated[str, typer.Option(help="Score shown in the terminal tables (crps, se_mean, log_score, …).")] = "crps",
+    score: Annotated[str, typer.Option(help="Score shown in the terminal tables: " + _SCORE_CHOICES + ".")] = "crps",
 ) -> None:
     """Score a run against a truth (no refitting) and print relative-score tables with tests."""
+    from harness.cli._common import USAGE_ERROR, fail
+    from harness.scores.registry import resolve
+
+    col = resolve(score)
+    if col is None or not col.is_loss:
+        fail(f"unknown score {score!r}; expected one of {_SCORE_CHOICES}", code=USAGE_ERROR)
+
     from harness.evaluation import evaluate, save, write_forecasts
     from harness.report.terminal import relative_text
 

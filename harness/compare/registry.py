@@ -26,7 +26,7 @@ import numpy as np
 
 Kind = Literal["pairwise", "set", "calibration", "stability"]
 
-__all__ = ["ComparisonTest", "TestResult", "cell_seed", "get_test", "register_test", "tests",
+__all__ = ["ComparisonTest", "TestResult", "cell_seed", "get_test", "register_test", "comparison_tests",
            "too_small"]
 
 
@@ -99,7 +99,7 @@ def register_test(test: ComparisonTest) -> ComparisonTest:
     return test
 
 
-def tests(kind: Kind | None = None) -> list[ComparisonTest]:
+def comparison_tests(kind: Kind | None = None) -> list[ComparisonTest]:
     """Registered tests in declaration order, optionally of one kind."""
     _load()
     return [t for t in _REGISTRY.values() if kind is None or t.kind == kind]

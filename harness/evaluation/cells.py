@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from harness.compare.registry import ComparisonTest, cell_seed, tests, too_small
+from harness.compare.registry import ComparisonTest, cell_seed, comparison_tests, too_small
 from harness.scores import resolve
 
 
@@ -57,7 +57,7 @@ def pairwise_tests(fc: pd.DataFrame, benchmark: str, *, seed: int,
     """Every pairwise test, each model against the benchmark, per variable × horizon × sub-period × score."""
     rows = []
     subs = list(dict.fromkeys(x for ss in fc["subperiods"] for x in ss))
-    for test in tests("pairwise"):
+    for test in comparison_tests("pairwise"):
         params = test.settings((settings or {}).get(test.name))
         cols = _columns_for(test, fc, scores)
         if not cols:
@@ -94,7 +94,7 @@ def set_tests(fc: pd.DataFrame, *, seed: int,
               settings: Mapping[str, Mapping[str, Any]] | None = None) -> pd.DataFrame:
     """Every set test (the model confidence set) per variable × horizon, full sample."""
     rows = []
-    for test in tests("set"):
+    for test in comparison_tests("set"):
         params = test.settings((settings or {}).get(test.name))
         for score in _columns_for(test, fc, None):
             for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
@@ -125,7 +125,7 @@ def calibration_tests(fc: pd.DataFrame, *, seed: int,
     """
     from harness.compare import pit_histogram
 
-    cal = tests("calibration")
+    cal = comparison_tests("calibration")
     rows = []
     for (model, var, h), g in fc.groupby(["model", "variable", "horizon"], sort=True):
         g = g.sort_values("origin")
@@ -166,7 +166,7 @@ def stability_tests(fc: pd.DataFrame, benchmark: str, *, seed: int,
                     settings: Mapping[str, Mapping[str, Any]] | None = None) -> pd.DataFrame:
     """Rolling comparisons (the fluctuation test) of each model against the benchmark, full sample."""
     rows = []
-    for test in tests("stability"):
+    for test in comparison_tests("stability"):
         params = test.settings((settings or {}).get(test.name))
         for score in _columns_for(test, fc, None):
             for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):

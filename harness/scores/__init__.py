@@ -8,93 +8,58 @@ ratios to a benchmark.
 
 from __future__ import annotations
 
-from harness.scores.crps import (
-    crps_ensemble,
-    crps_pairs_reference,
-    crps_sorted,
-    threshold_weighted_crps,
-    weighted_crps_quantile,
-)
-from harness.scores.density import log_score, pit, silverman_bandwidth
-from harness.scores.frames import (
-    aggregate,
-    best_per_column,
-    common_sample,
-    relative_to,
-    tidy_scores,
-)
-from harness.scores.fused import score_all
-from harness.scores.kernels import (
-    DEFAULT_COVERAGE_LEVELS,
-    DEFAULT_DENSITY_FLOOR,
-    DEFAULT_QUANTILE_LEVELS,
-    QUANTILE_METHODS,
-    QUANTILE_WEIGHTS,
-    TAIL_SIDES,
-    TIES,
-    TW_WEIGHTS,
-)
-from harness.scores.point import point_errors
-from harness.scores.quantiles import (
-    coverage,
-    ensemble_quantiles,
-    interval_score,
-    pinball_loss,
-    quantile_score,
-)
-from harness.scores.registry import (
-    DEFAULT_INTERVAL_LEVELS,
-    Column,
-    Score,
-    ScoreConfig,
-    columns,
-    is_score_column,
-    register_score,
-    resolve,
-    score_names,
-    scores,
-)
-from harness.scores.subperiods import FULL, assign_subperiods
+import importlib
 
-__all__ = [
-    "DEFAULT_COVERAGE_LEVELS",
-    "DEFAULT_DENSITY_FLOOR",
-    "DEFAULT_INTERVAL_LEVELS",
-    "DEFAULT_QUANTILE_LEVELS",
-    "FULL",
-    "QUANTILE_METHODS",
-    "QUANTILE_WEIGHTS",
-    "TAIL_SIDES",
-    "TIES",
-    "TW_WEIGHTS",
-    "Column",
-    "Score",
-    "ScoreConfig",
-    "aggregate",
-    "assign_subperiods",
-    "best_per_column",
-    "columns",
-    "common_sample",
-    "coverage",
-    "crps_ensemble",
-    "crps_pairs_reference",
-    "crps_sorted",
-    "ensemble_quantiles",
-    "interval_score",
-    "is_score_column",
-    "log_score",
-    "pinball_loss",
-    "pit",
-    "point_errors",
-    "quantile_score",
-    "register_score",
-    "relative_to",
-    "resolve",
-    "score_all",
-    "score_names",
-    "scores",
-    "silverman_bandwidth",
-    "threshold_weighted_crps",
-    "tidy_scores",
-    "weighted_crps_quantile",
-]
+_PUBLIC = {
+    "Column": "harness.scores.registry",
+    "DEFAULT_COVERAGE_LEVELS": "harness.scores.registry",
+    "DEFAULT_DENSITY_FLOOR": "harness.scores.registry",
+    "DEFAULT_INTERVAL_LEVELS": "harness.scores.registry",
+    "DEFAULT_QUANTILE_LEVELS": "harness.scores.registry",
+    "FULL": "harness.scores.subperiods",
+    "QUANTILE_METHODS": "harness.scores.kernels",
+    "QUANTILE_WEIGHTS": "harness.scores.kernels",
+    "Score": "harness.scores.registry",
+    "ScoreConfig": "harness.scores.registry",
+    "TAIL_SIDES": "harness.scores.kernels",
+    "TIES": "harness.scores.kernels",
+    "TW_WEIGHTS": "harness.scores.kernels",
+    "aggregate": "harness.scores.frames",
+    "assign_subperiods": "harness.scores.subperiods",
+    "best_per_column": "harness.scores.frames",
+    "columns": "harness.scores.registry",
+    "common_sample": "harness.scores.frames",
+    "coverage": "harness.scores.quantiles",
+    "crps_ensemble": "harness.scores.crps",
+    "crps_pairs_reference": "harness.scores.crps",
+    "crps_sorted": "harness.scores.crps",
+    "ensemble_quantiles": "harness.scores.quantiles",
+    "interval_score": "harness.scores.quantiles",
+    "is_score_column": "harness.scores.registry",
+    "log_score": "harness.scores.density",
+    "pinball_loss": "harness.scores.quantiles",
+    "pit": "harness.scores.density",
+    "point_errors": "harness.scores.point",
+    "quantile_score": "harness.scores.quantiles",
+    "register_score": "harness.scores.registry",
+    "relative_to": "harness.scores.frames",
+    "resolve": "harness.scores.registry",
+    "score_all": "harness.scores.fused",
+    "score_names": "harness.scores.registry",
+    "scores": "harness.scores.registry",
+    "silverman_bandwidth": "harness.scores.density",
+    "threshold_weighted_crps": "harness.scores.crps",
+    "tidy_scores": "harness.scores.frames",
+    "weighted_crps_quantile": "harness.scores.crps",
+}
+
+__all__ = sorted(_PUBLIC)
+
+
+def __getattr__(name: str):
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'harness.scores' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value

@@ -7,19 +7,22 @@ against that rule.
 
 from __future__ import annotations
 
-import numpy as np
-
-from harness.scores.kernels import (
-    _coverage_hits,
-    _crps_from_sorted,
-    _log_score_from_sorted,
-    _midpoint_levels,
-    _pit_from_sorted,
-    _silverman,
-    _weighted_from_quantiles,
-)
-from harness.scores.quantiles import interval_score_from_q
 from harness.scores.registry import Score, ScoreConfig, _level_name, register_score
+
+# The declarations import nothing numerical: the rules below load their kernels when they run,
+# so listing the scores (e.g. in the command line's help) costs no numpy import.
+
+
+def _k():
+    from harness.scores import kernels
+
+    return kernels
+
+
+def _np():
+    import numpy
+
+    return numpy
 
 _GR2007 = ("Gneiting, T. and Raftery, A. E. (2007). Strictly proper scoring rules, prediction, and "
            "estimation. JASA 102(477), 359-378")
@@ -27,17 +30,18 @@ _GR2011 = ("Gneiting, T. and Ranjan, R. (2011). Comparing density forecasts usin
            "quantile-weighted scoring rules. JBES 29(3), 411-422")
 
 
-def _grid(cfg: ScoreConfig) -> np.ndarray:
-    return _midpoint_levels(int(cfg.n_levels))
+def _grid(cfg: ScoreConfig):
+    return _k()._midpoint_levels(int(cfg.n_levels))
 
 
-def _ends(levels) -> np.ndarray:
+def _ends(levels):
+    np = _np()
     c = np.asarray(levels, dtype=np.float64)
     return np.concatenate([(1 - c) / 2, (1 + c) / 2])
 
 
-def _none(cfg: ScoreConfig) -> np.ndarray:
-    return np.zeros(0)
+def _none(cfg: ScoreConfig):
+    return _np().zeros(0)
 
 
 # ----------------------------------------------------------------------------- density scores
@@ -47,14 +51,14 @@ register_score(Score(
     roles=frozenset({"headline", "density"}),
     reference=f"{_GR2007}, eq. 21 (kernel form, exact for the ensemble)",
     needs=_none,
-    compute=lambda ch, cfg: {"crps": _crps_from_sorted(ch.s, ch.y, ch.k, ch.full)},
+    compute=lambda ch, cfg: {"crps": _k()._crps_from_sorted(ch.s, ch.y, ch.k, ch.full)},
 ))
 
 
 def _weighted(weight: str):
     def compute(ch, cfg):
         grid = _grid(cfg)
-        return {f"crps_{weight}": _weighted_from_quantiles(ch.pinball(grid), grid, weight)}
+        return {f"crps_{weight}": _k()._weighted_from_quantiles(ch.pinball(grid), grid, weight)}
     return compute
 
 
@@ -72,8 +76,9 @@ for _w, _label, _roles in (("centre", "centre-weighted CRPS", {"density"}),
 
 
 def _log_score(ch, cfg):
-    h = _silverman(ch.s, ch.k, ch.full, ch.mean)
-    return {"log_score": _log_score_from_sorted(ch.s, ch.y, ch.k, ch.full, h, cfg.density_floor)}
+    k = _k()
+    h = k._silverman(ch.s, ch.k, ch.full, ch.mean)
+    return {"log_score": k._log_score_from_sorted(ch.s, ch.y, ch.k, ch.full, h, cfg.density_floor)}
 
 
 register_score(Score(
@@ -82,7 +87,7 @@ register_score(Score(
     roles=frozenset({"headline", "density"}),
     reference=(f"{_GR2007} (logarithmic score); Silverman, B. W. (1986). Density Estimation for "
                "Statistics and Data Analysis, eq. 3.31 (kernel bandwidth)"),
-    needs=lambda cfg: np.array([0.25, 0.75]), compute=_log_score,
+    needs=_none, compute=_log_score,
 ))
 
 
@@ -91,7 +96,7 @@ def _point(kind: str, err: str):
     def compute(ch, cfg):
         centre = ch.mean if kind == "mean" else ch.median
         e = centre - ch.y
-        return {f"{err}_{kind}": e * e if err == "se" else np.abs(e)}
+        return {f"{err}_{kind}": e * e if err == "se" else abs(e)}
     return compute
 
 
@@ -103,7 +108,7 @@ for _kind in ("mean", "median"):
         tests=("dm",), roles=frozenset({"point"} | ({"headline"} if _kind == "mean" else set())),
         reference="common practice (squared error of the ensemble's point forecast); the RMSE "
                   "ratio is the square root of the MSE ratio",
-        needs=lambda cfg: np.array([0.5]), compute=_point(_kind, "se"),
+        needs=_none, compute=_point(_kind, "se"),
     ))
     register_score(Score(
         key=f"ae_{_kind}", label=f"MAE ({_kind})" if _kind == "median" else "MAE",
@@ -111,13 +116,17 @@ for _kind in ("mean", "median"):
         unit="units of the variable", orientation="lower", versus="ratio", tests=("dm",),
         roles=frozenset({"point"}),
         reference="common practice (absolute error of the ensemble's point forecast)",
-        needs=lambda cfg: np.array([0.5]), compute=_point(_kind, "ae"),
+        needs=_none, compute=_point(_kind, "ae"),
     ))
 
 
 # ----------------------------------------------------------------------------- quantiles and intervals
+def _levels(values):
+    return _np().asarray(values, dtype=float)
+
+
 def _qs(ch, cfg):
-    lev = np.asarray(cfg.quantile_levels, dtype=np.float64)
+    lev = _levels(cfg.quantile_levels)
     qs = ch.pinball(lev)
     return {_level_name("qs_{pct}", a, "quantile_levels"): qs[:, j] for j, a in enumerate(lev)}
 
@@ -127,15 +136,15 @@ register_score(Score(
     orientation="lower", versus="ratio", tests=("dm",), roles=frozenset({"quantile"}),
     reference=f"{_GR2011}, eq. 3 (pinball loss, scaled so that CRPS = 2 × its integral)",
     pattern="qs_{pct}", config_levels="quantile_levels",
-    needs=lambda cfg: np.asarray(cfg.quantile_levels, dtype=np.float64), compute=_qs,
+    needs=lambda cfg: _levels(cfg.quantile_levels), compute=_qs,
     level_roles=lambda a: {"tail"} if (a <= 0.10 + 1e-12 or a >= 0.90 - 1e-12) else set(),
 ))
 
 
 def _cover(ch, cfg):
-    lev = np.asarray(cfg.coverage_levels, dtype=np.float64)
+    lev = _levels(cfg.coverage_levels)
     q = ch.quantiles(_ends(lev))
-    hits = _coverage_hits(ch.y, q[:, : lev.size], q[:, lev.size:])
+    hits = _k()._coverage_hits(ch.y, q[:, : lev.size], q[:, lev.size:])
     return {_level_name("cover_{pct}", a, "coverage_levels"): hits[:, j] for j, a in enumerate(lev)}
 
 
@@ -151,7 +160,9 @@ register_score(Score(
 
 
 def _interval(ch, cfg):
-    lev = np.asarray(cfg.interval_levels, dtype=np.float64)
+    from harness.scores.quantiles import interval_score_from_q
+
+    lev = _levels(cfg.interval_levels)
     q = ch.quantiles(_ends(lev))
     out = {}
     for j, c in enumerate(lev):
@@ -176,7 +187,7 @@ register_score(Score(
     reference=("Gneiting, T., Balabdaoui, F. and Raftery, A. E. (2007). Probabilistic forecasts, "
                "calibration and sharpness. JRSS B 69(2), 243-268 (mid-rank ties)"),
     needs=_none,
-    compute=lambda ch, cfg: {"pit": _pit_from_sorted(ch.s, ch.y, ch.k, "mid", None)},
+    compute=lambda ch, cfg: {"pit": _k()._pit_from_sorted(ch.s, ch.y, ch.k, "mid", None)},
 ))
 
 # Threshold-weighted CRPS needs a threshold per forecast: users compute it with

@@ -14,6 +14,12 @@ from typing import Literal
 
 import numpy as np
 
+from harness.scores.registry import (  # noqa: F401  (re-exported defaults)
+    DEFAULT_COVERAGE_LEVELS,
+    DEFAULT_DENSITY_FLOOR,
+    DEFAULT_QUANTILE_LEVELS,
+)
+
 QuantileMethod = Literal["linear", "inverted_cdf"]
 QUANTILE_METHODS: tuple[str, ...] = ("inverted_cdf", "linear")
 QuantileWeight = Literal["centre", "left", "right", "tails", "uniform"]
@@ -32,11 +38,6 @@ QUANTILE_WEIGHTS: dict[str, Callable[[np.ndarray], np.ndarray]] = {
     "tails": lambda a: (2.0 * a - 1.0) ** 2,
     "uniform": lambda a: np.ones_like(a),
 }
-# The densities of a spread-out ensemble far below this are "the observation was impossible";
-# flooring keeps one outlier from dominating a mean log score (score capped at -log(1e-10)).
-DEFAULT_DENSITY_FLOOR = 1e-10
-DEFAULT_QUANTILE_LEVELS = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
-DEFAULT_COVERAGE_LEVELS = (0.5, 0.7, 0.9)
 _CHUNK_BYTES = 64 * 2**20  # per (rows, m) float64 temporary in score_all
 
 

@@ -20,18 +20,17 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
-import numpy as np
-
-from harness.scores.kernels import (
-    DEFAULT_COVERAGE_LEVELS,
-    DEFAULT_DENSITY_FLOOR,
-    DEFAULT_QUANTILE_LEVELS,
-)
-
 Orientation = Literal["lower", "calibration"]
 Versus = Literal["ratio", "sqrt_ratio", "difference"]
 
+# Default levels of the families (whole percentages) and the log score's density floor. This
+# module imports nothing heavy, so the command line can list the scores in its help at once.
+DEFAULT_QUANTILE_LEVELS = (0.05, 0.10, 0.25, 0.50, 0.75, 0.90, 0.95)
+DEFAULT_COVERAGE_LEVELS = (0.5, 0.7, 0.9)
 DEFAULT_INTERVAL_LEVELS = (0.5, 0.8)
+# Densities of a spread-out ensemble far below this mean "the observation was impossible";
+# flooring keeps one outlier from dominating a mean log score (score capped at -log(1e-10)).
+DEFAULT_DENSITY_FLOOR = 1e-10
 
 __all__ = [
     "Column",
@@ -123,8 +122,8 @@ class Score:
     reference: str = ""
     pattern: str | None = None
     config_levels: str | None = None
-    needs: Callable[[ScoreConfig], np.ndarray] | None = None
-    compute: Callable[[Any, ScoreConfig], dict[str, np.ndarray]] | None = None
+    needs: Callable[[ScoreConfig], Any] | None = None
+    compute: Callable[[Any, ScoreConfig], dict[str, Any]] | None = None
     level_roles: Callable[[float], set[str]] | None = None
     _regex: re.Pattern | None = field(default=None, compare=False, repr=False)
 

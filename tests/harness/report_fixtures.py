@@ -141,19 +141,11 @@ def _aggregate(fc: pd.DataFrame, score_cols) -> pd.DataFrame:
     return table
 
 
-# the loss scores the fake relative table divides by the benchmark's
-LOSSES = ("crps", "crps_centre", "crps_tails", "crps_left", "crps_right", "log_score", "se_mean", "ae_mean",
-          "se_median", "ae_median")
-
-
 def _relative(table: pd.DataFrame, benchmark: str) -> pd.DataFrame:
-    key = ["variable", "horizon", "subperiod"]
-    loss = [c for c in LOSSES if c in table]
-    b = table[table["model"] == benchmark][key + loss]
-    m = table[["model"] + key + ["n"] + loss].merge(b, on=key, suffixes=("", "_b"), how="left")
-    for c in loss:
-        m[c] = m[c] / m[c + "_b"]
-    return m[["model"] + key + ["n"] + loss]
+    """The relative table exactly as the evaluation builds it (the score registry's rules)."""
+    from harness.scores import relative_to
+
+    return relative_to(table, benchmark)
 
 
 def _dense(fc: pd.DataFrame, cols) -> tuple[dict[str, np.ndarray], list, list, list, list]:

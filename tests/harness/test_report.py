@@ -16,15 +16,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from harness.report import SECTION_IDS, build_report, changes, headline
-from harness.report.html import format_horizons
-from harness.report.tables import (
-    PALETTE,
-    RATIO_STEPS,
-    escape_latex,
-    escape_markdown,
-    ratio_level,
-    stars,
-)
+from harness.report.colours import PALETTE, RATIO_STEPS, ratio_level, stars
+from harness.report.escape import escape_latex, escape_markdown
+from harness.report.headline import format_horizons
 from tests.harness.report_fixtures import make_bundle, make_store
 
 MARKUP = '<b>x</b>&"$1'
