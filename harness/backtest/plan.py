@@ -59,9 +59,10 @@ class Plan:
             f"mode        {s.mode}; ragged edge policy {s.policy}; panel frequency {s.freq}",
             f"origins     {len(self.origins)}: {self.origins[0]} … {self.origins[-1]}" if len(self.origins) else
             "origins     none",
-            "variables   " + ", ".join(f"{k} ({v['transform']}{', ' + v['convert'] if 'convert' in v else ''})"
+            "variables   " + ", ".join(f"{k} ({v.transform}{', ' + v.convert if v.convert else ''})"
                                         for k, v in s.variables.items()),
-            f"targets     {', '.join(s.targets)} at horizons {s.horizons[0]}…{s.horizons[-1]}"
+            f"targets     {', '.join(s.targets.variables)} at horizons {s.targets.horizons[0]}…"
+            f"{s.targets.horizons[-1]}"
             f" (h<0 backcast, 0 nowcast, >0 forecast)",
             "models      " + "; ".join(f"{m.name} = {m.type} {json.dumps(m.params) if m.params else ''}".strip()
                                         for m in s.models),
@@ -122,10 +123,10 @@ def make_plan(spec: Spec) -> Plan:
         raise SpecError(f"{spec.path}: [variables] {missing} not in the store {spec.store}; "
                         f"it holds: {', '.join(sorted(store.variables))}")
     cube = store.cube(variables=list(spec.variables))
-    origins = check_origins(cube, parse_schedule(spec.origins, cube=cube))
+    origins = check_origins(cube, parse_schedule(spec.origins.as_mapping(), cube=cube))
     t1 = time.perf_counter()
     infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
-    targets = [make_targets(info, spec.targets, spec.horizons, spec.freq) for info in infos]
+    targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, spec.freq) for info in infos]
     t2 = time.perf_counter()
     models, tasks = {}, []
     for ms in spec.models:

@@ -21,14 +21,14 @@ from __future__ import annotations
 import json
 import os
 import platform
-import shutil
 import sys
 import time
 from dataclasses import dataclass
 from pathlib import Path
 
 from harness.backtest.dispatch import _dispatch
-from harness.backtest.ledger import assemble, failure_path, task_path
+from harness.backtest.ledger import assemble, failure_path, remove_stale, task_path
+from harness.backtest.manifest import RunManifest
 from harness.backtest.plan import Plan, make_plan
 from harness.backtest.progress import Progress
 from harness.spec import Spec
@@ -46,7 +46,7 @@ class RunResult:
     cached: int
     failed: list[dict]
     timings: dict
-    manifest: dict
+    manifest: RunManifest
 
     @property
     def ok(self) -> bool:
@@ -64,6 +64,16 @@ class RunResult:
             lines.append("rerun with --retry-failed to retry only these")
             return "\n".join(lines)
         return s
+
+
+def _previous_manifest(run_dir: Path) -> RunManifest | None:
+    """The run directory's manifest before this run (None if absent or of another format)."""
+    from harness.errors import RunError
+
+    try:
+        return RunManifest.read(run_dir)
+    except RunError:
+        return None
 
 
 def _versions() -> dict:
@@ -115,7 +125,10 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
     out.mkdir(parents=True, exist_ok=True)
     cache.mkdir(parents=True, exist_ok=True)
     if spec.path.is_file() and spec.path.resolve() != (out / "spec.toml").resolve():
-        shutil.copyfile(spec.path, out / "spec.toml")
+        from vintages import atomic_write_bytes
+
+        atomic_write_bytes(out / "spec.toml", spec.path.read_bytes())
+    previous = _previous_manifest(out)
 
     records: dict[str, dict] = {}
     todo = []
@@ -144,7 +157,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
     bar.close()
     t_assemble = time.perf_counter()
     ordered = [records[t.key] for t in plan.tasks]
-    assemble(out, cache, ordered)
+    files = assemble(out, cache, ordered, previous)
     failures = [{k: r.get(k) for k in ("model", "origin", "key", "error", "traceback")}
                 for r in ordered if r.get("status") != "ok"]
     computed = sum(1 for r in ordered if not r.get("cached"))
@@ -152,35 +165,41 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
     plan_time = sum(plan.timings.values()) if given_plan else 0.0  # else already inside t_start..t_end
     timings = dict(plan.timings, dispatch=t_assemble - t_run, assemble=t_end - t_assemble,
                    total=t_end - t_start + plan_time)
-    manifest = {
-        "name": spec.name,
-        "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
-        "spec": str(spec.path),
-        "spec_hash": spec.hash(),
-        "store": str(spec.store),
-        "store_checksum": plan.store_checksum,
-        "store_batches": plan.store_batches,
-        "mode": spec.mode,
-        "policy": spec.policy,
-        "freq": spec.freq,
-        "seed": spec.seed,
-        "draws": spec.draws,
-        "models": [m.name for m in spec.models],
-        "model_specs": {m.name: {"type": m.type, "params": m.params} for m in spec.models},
-        "origins": [str(o) for o in plan.origins],
-        "targets": list(spec.targets),
-        "horizons": list(spec.horizons),
-        "target_periods": [[str(p) for p in tg.periods()] for tg in plan.targets],
-        "variables": spec.variables,
-        "scoring": {k: v for k, v in spec.scoring.items()},
-        "backend": backend,
-        "jobs": jobs or os.cpu_count(),
-        "counts": {"total": len(ordered), "computed": computed, "cached": len(ordered) - computed,
-                   "failed": len(failures)},
-        "tasks": [{k: r.get(k) for k in ("model", "origin", "key", "status", "elapsed", "cached")} for r in ordered],
-        "failures": failures,
-        "timings": timings,
-        "versions": _versions(),
-    }
-    (out / "run.json").write_text(json.dumps(manifest, indent=1, default=str) + "\n")
+    manifest = RunManifest(
+        name=spec.name,
+        created=time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+        spec=str(spec.path),
+        spec_hash=spec.hash(),
+        store=str(spec.store),
+        store_checksum=plan.store_checksum,
+        store_batches=plan.store_batches,
+        mode=spec.mode,
+        policy=spec.policy,
+        freq=spec.freq,
+        seed=spec.seed,
+        draws=spec.draws,
+        models=tuple(m.name for m in spec.models),
+        model_specs={m.name: {"type": m.type, "params": m.params} for m in spec.models},
+        origins=tuple(str(o) for o in plan.origins),
+        targets=tuple(spec.targets.variables),
+        horizons=tuple(spec.targets.horizons),
+        target_periods=tuple(tuple(str(p) for p in tg.periods()) for tg in plan.targets),
+        variables=spec.series(),
+        scoring=spec.scoring,
+        backend=backend,
+        jobs=jobs or os.cpu_count(),
+        counts={"total": len(ordered), "computed": computed, "cached": len(ordered) - computed,
+                "failed": len(failures)},
+        tasks=tuple({k: r.get(k) for k in ("model", "origin", "key", "status", "elapsed", "cached")}
+                    for r in ordered),
+        failures=tuple(failures),
+        timings=timings,
+        versions=_versions(),
+        ledger=files.ledger,
+        provenance=files.provenance,
+        ledger_digest=files.digest,
+        ledger_rows=files.rows,
+    )
+    manifest.write(out)
+    remove_stale(out, files)
     return RunResult(out, len(ordered), computed, len(ordered) - computed, failures, timings, manifest)

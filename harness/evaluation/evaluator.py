@@ -56,7 +56,7 @@ class Evaluation:
     chronology_source: str
     turning_points: pd.DataFrame
     subperiod_names: list[str] = field(default_factory=list)
-    manifest: dict = field(default_factory=dict)
+    manifest: object = None  # RunManifest
 
     @property
     def missing(self) -> pd.DataFrame:
@@ -80,28 +80,31 @@ def _truths(cube, rule: str, variables: dict, targets: list[str], periods_by_var
     return pd.concat(rows, ignore_index=True)
 
 
-def regimes_for(manifest: dict, cube, periods: pd.PeriodIndex) -> tuple[pd.Series, str, pd.DataFrame]:
-    """Recession/expansion label per period: from the chronology file, else Harding–Pagan dating."""
+def regimes_for(manifest, cube, periods: pd.PeriodIndex) -> tuple[pd.Series, str, pd.DataFrame]:
+    """Recession/expansion label per period: from the chronology file, else Harding–Pagan dating.
+
+    Harding–Pagan uses the spec's ``[scoring] min_phase`` / ``min_cycle`` when given.
+    """
     from vintages import harding_pagan, read_chronology, regimes
 
-    scoring = manifest.get("scoring", {})
-    if scoring.get("chronology"):
-        chron = read_chronology(scoring["chronology"])
-        return regimes(chron, periods), f"chronology file {scoring['chronology']}", chron
-    var = scoring.get("cycle_variable") or manifest["targets"][0]
-    freq = manifest.get("freq", "Q")
+    scoring = manifest.scoring
+    if scoring.chronology is not None:
+        chron = read_chronology(scoring.chronology)
+        return regimes(chron, periods), f"chronology file {scoring.chronology}", chron
+    var = scoring.cycle_variable or manifest.targets[0]
     lat = cube.latest(cube.freq_of(var)).sel(variable=var).to_series().dropna()
     if cube.freq_of(var) == "M":
         lat = lat.groupby(lat.index.asfreq("Q")).mean()
-    tp = harding_pagan(lat, **{k: int(scoring[k]) for k in ("min_phase", "min_cycle") if k in scoring})
-    rules = ", ".join(f"{k} {scoring[k]}" for k in ("min_phase", "min_cycle") if k in scoring)
-    src = f"Harding–Pagan (2002) dating of {var} in the latest vintage" + (f" ({rules})" if rules else "")
-    return regimes(tp, periods if freq == "Q" else periods.asfreq("Q")), src, tp
+    rules = {k: getattr(scoring, k) for k in ("min_phase", "min_cycle") if getattr(scoring, k) is not None}
+    tp = harding_pagan(lat, **rules)
+    said = ", ".join(f"{k} {v}" for k, v in rules.items())
+    src = f"Harding–Pagan (2002) dating of {var} in the latest vintage" + (f" ({said})" if said else "")
+    return regimes(tp, periods if manifest.freq == "Q" else periods.asfreq("Q")), src, tp
 
 
 def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, cube=None,
-             dm_scores=None, tests: bool = True, seed: int | None = None,
-             test_settings: dict | None = None) -> Evaluation:
+             benchmark: str | None = None, dm_scores=None, tests: bool = True,
+             seed: int | None = None, test_settings: dict | None = None) -> Evaluation:
     """Score a run against one truth rule.
 
     Parameters
@@ -111,6 +114,9 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     truth : str, optional
         ``first``, ``release:K``, ``lag:NNND``, ``latest`` or ``asof:YYYY-MM-DD``; default: the
         spec's ``[scoring] truth``.
+    benchmark : str, optional
+        The incumbent every model is set against (default the spec's ``[scoring] benchmark``);
+        choosing another needs no refit.
     store : VintageStore, optional
         Default: the store the run names.
     cube : Cube, optional
@@ -138,31 +144,27 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
     man = ledger.manifest
-    scoring = man.get("scoring", {})
-    truth = truth or scoring.get("truth", "first")
-    parse_truth(truth)
-    benchmark = scoring.get("benchmark", man["models"][0])
-    freq = man.get("freq", "Q")
+    scoring = man.scoring
+    truth = str(parse_truth(truth or scoring.truth or "first"))
+    benchmark = benchmark or man.benchmark
+    if benchmark not in man.models:
+        raise ValueError(f"unknown benchmark {benchmark!r}; models of this run: {list(man.models)}")
+    freq = man.freq
     if cube is None:
-        store = store or VintageStore(man["store"])
-        cube = store.cube(variables=list(man["variables"]))
+        store = store or VintageStore(man.store)
+        cube = store.cube(variables=list(man.variables))
 
     frame = ledger.frame()
     periods_by_var = {v: sorted(set(frame.loc[frame["variable"] == v, "target_period"]),
-                                key=lambda s: pd.Period(s, freq=freq)) for v in man["targets"]}
-    truths = _truths(cube, truth, man["variables"], man["targets"], periods_by_var, freq)
+                                key=lambda s: pd.Period(s, freq=freq)) for v in man.targets}
+    truths = _truths(cube, truth, man.variables, man.targets, periods_by_var, freq)
     frame = frame.merge(truths, on=["variable", "target_period"], how="left")
     ok = frame["ok"].to_numpy()
     draws = ledger.draws.transpose("model", "origin", "variable", "horizon", "draw").values
     draws = draws.reshape(-1, draws.shape[-1])[ok]
     fc = frame[ok].reset_index(drop=True)
-    kw = {}
-    if "quantile_levels" in scoring:
-        kw["quantile_levels"] = tuple(scoring["quantile_levels"])
-    if "coverage_levels" in scoring:
-        kw["coverage_levels"] = tuple(scoring["coverage_levels"])
-    if "interval_levels" in scoring:
-        kw["interval_levels"] = tuple(scoring["interval_levels"])
+    kw = {k: tuple(getattr(scoring, k)) for k in ("quantile_levels", "coverage_levels", "interval_levels")
+          if getattr(scoring, k) is not None}
     # draws are stored as float32: compare them with the truth at the same resolution, so that a
     # forecast equal to an already published value scores exactly zero error
     obs = fc["truth"].to_numpy(dtype=np.float64).astype(np.float32).astype(np.float64)
@@ -171,7 +173,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
         fc[k] = v
     all_periods = pd.PeriodIndex(sorted({pd.Period(p, freq=freq) for p in fc["target_period"]}), freq=freq)
     reg, chron_src, tps = regimes_for(man, cube, all_periods)
-    sub = {k: tuple(v) for k, v in scoring.get("subperiods", {}).items()}
+    sub = scoring.subperiod_map
     fc["_row"] = np.arange(len(fc))
     long = assign_subperiods(fc, sub, reg)
     rows_ = long["_row"].to_numpy()
@@ -188,8 +190,8 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     table = aggregate(common, ("model", "variable", "horizon"), score_columns=score_cols)
     relative = relative_to(table, benchmark)
     if tests:
-        seed = int(man.get("seed", 0)) if seed is None else int(seed)
-        settings = test_settings if test_settings is not None else scoring.get("tests", {})
+        seed = int(man.seed) if seed is None else int(seed)
+        settings = test_settings if test_settings is not None else (scoring.tests or {})
         dm = cells.pairwise_tests(fc, benchmark, seed=seed, settings=settings, scores=dm_scores)
         mcs = cells.set_tests(fc, seed=seed, settings=settings)
         calib = cells.calibration_tests(fc, seed=seed, settings=settings)

@@ -18,7 +18,7 @@ Three checks, each a tidy table:
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -126,7 +126,7 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
     from vintages import VintageStore
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
-    cube = VintageStore(ledger.manifest["store"]).cube(variables=list(ledger.manifest["variables"]))
+    cube = VintageStore(ledger.manifest.store).cube(variables=list(ledger.manifest.variables))
     evs = {t: evaluate(ledger, t, cube=cube, tests=False) for t in truths}
     rows = []
     for t, ev in evs.items():
@@ -156,8 +156,8 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
     from harness.backtest import run
     from harness.evaluation import evaluate, steps_ahead
 
-    pseudo_spec = replace(spec, mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
-                          cache=spec.cache_dir)
+    pseudo_spec = spec.with_run(mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
+                                cache=spec.cache_dir)
     res = run(pseudo_spec, jobs=jobs, backend=backend, progress=progress, log=log)
     pseudo = evaluate(res.run_dir, truth, tests=False)  # its own ledger; the store is the same
     key = ["model", "origin", "variable", "horizon"]
@@ -253,7 +253,7 @@ def sensitivity(spec, *, truths=None, run_dir=None, jobs=None, backend="loky", p
     """Run all three checks for a spec whose real-time run exists (or is run now)."""
     from harness.backtest import run
 
-    truths = tuple(truths or spec.scoring.get("truths") or DEFAULT_TRUTHS)
+    truths = tuple(truths or spec.scoring.truths or DEFAULT_TRUTHS)
     if run_dir is None:
         res = run(spec, jobs=jobs, backend=backend, progress=progress, log=log)
         run_dir = res.run_dir

@@ -167,21 +167,13 @@ def get_model_class(name_or_path: str | type) -> type:
 
 
 def _import_path(path: str, *, what: str) -> Any:
-    """Import ``package.module:Attr.sub``; errors name the part that failed."""
-    mod_name, _, attr = path.partition(":")
-    if not mod_name or not attr:
-        raise UnknownModelError(f"{what} path {path!r} is malformed; expected 'package.module:Class'")
+    """Import ``package.module:Attr.sub`` or ``path/to/file.py:Attr``; errors name the part that failed."""
+    from harness.models.introspect import load_object
+
     try:
-        obj: Any = importlib.import_module(mod_name)
+        return load_object(path, what=what)
     except ImportError as exc:
-        raise UnknownModelError(f"{what} path {path!r}: cannot import module {mod_name!r} ({exc})") from exc
-    for part in attr.split("."):
-        try:
-            obj = getattr(obj, part)
-        except AttributeError:
-            raise UnknownModelError(f"{what} path {path!r}: module {mod_name!r} has no attribute "
-                                    f"{attr!r}") from None
-    return obj
+        raise UnknownModelError(str(exc)) from None
 
 
 def make_model(type_name: str | type, **params: Any) -> Any:

@@ -27,7 +27,7 @@ def _open_store(current, store):
         from vintages import VintageStore
 
         return VintageStore(store)
-    path = (current.manifest or {}).get("store")
+    path = getattr(current.manifest, "store", None)
     if not path:
         return None
     try:
@@ -56,8 +56,8 @@ def new_releases(current, earlier, store=None) -> pd.DataFrame:
         the batch).
     """
     cols = ["seq", "source", "created", "rows", "variables", "first_release", "last_release"]
-    lo = int((earlier.manifest or {}).get("store_batches", 0) or 0)
-    hi = int((current.manifest or {}).get("store_batches", 0) or 0)
+    lo = int(getattr(earlier.manifest, "store_batches", 0) or 0)
+    hi = int(getattr(current.manifest, "store_batches", 0) or 0)
     if hi <= lo:
         return pd.DataFrame(columns=cols)
     st = _open_store(current, store)
@@ -119,8 +119,8 @@ def changes(current, earlier, store=None, *, threshold: float = DEFAULT_THRESHOL
                              f"expected one of {valid}")
     o_cur = pd.DatetimeIndex(pd.unique(current.forecasts["origin"]))
     o_old = pd.DatetimeIndex(pd.unique(earlier.forecasts["origin"]))
-    man_cur = [pd.Timestamp(o) for o in (current.manifest or {}).get("origins", [])]
-    man_old = [pd.Timestamp(o) for o in (earlier.manifest or {}).get("origins", [])]
+    man_cur = [pd.Timestamp(o) for o in getattr(current.manifest, "origins", ())]
+    man_old = [pd.Timestamp(o) for o in getattr(earlier.manifest, "origins", ())]
     cur = pd.DatetimeIndex(sorted(set(o_cur) | set(man_cur)))
     old = set(o_old) | set(man_old)
     new_origins = pd.DataFrame({"origin": [o for o in cur if o not in old]})

@@ -23,7 +23,7 @@ from string import Template
 
 from harness.report.escape import escape_html, escape_markdown, slug
 from harness.report.grid import FrameTable, GridTable
-from harness.report.sections import SECTIONS, ReportContext, _variables
+from harness.report.sections import SECTIONS, ReportContext, _variables, manifest_value
 
 _TEMPLATE_DIR = Path(__file__).with_name("templates")
 
@@ -116,8 +116,7 @@ def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_trut
     rep = ReportWriter(out)
     ev = evaluation
     variables = _variables(ev)
-    man = ev.manifest or {}
-    title = title or f"Model review: {man.get('name') or ev.run_dir}"
+    title = title or f"Model review: {manifest_value(ev, 'name') or ev.run_dir}"
     ctx = ReportContext(rep, ev, variables, ledger, fan_truths, sensitivity, since)
     built, md = [], [f"# {escape_markdown(title)}", ""]
     for sec in SECTIONS:

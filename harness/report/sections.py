@@ -31,13 +31,19 @@ CAUTION = ("These results describe how the models would have performed in the pa
            "governance to decide.")
 
 
+def manifest_value(evaluation, key: str, default=None):
+    """A field of the evaluation's run manifest (``default`` when there is no manifest)."""
+    man = getattr(evaluation, "manifest", None)
+    return getattr(man, key, default) if man is not None else default
+
+
 def _p(text: str, cls: str | None = None) -> str:
     c = f' class="{cls}"' if cls else ""
     return f"<p{c}>{escape_html(text)}</p>"
 
 
 def _variables(evaluation) -> list[str]:
-    targets = (evaluation.manifest or {}).get("targets")
+    targets = manifest_value(evaluation, "targets")
     seen = [str(v) for v in pd.unique(evaluation.forecasts["variable"])]
     if targets:
         return [str(v) for v in targets if str(v) in seen] + [v for v in seen if v not in map(str, targets)]
@@ -67,33 +73,35 @@ def _ordered(df: pd.DataFrame, ev, variables) -> pd.DataFrame:
 
 
 def _run_frame(evaluation) -> pd.DataFrame:
-    man = evaluation.manifest or {}
-    origins = man.get("origins") or [str(pd.Timestamp(o).date()) for o in sorted(pd.unique(
+    def man_get(key, default=""):
+        return manifest_value(evaluation, key, default)
+
+    origins = man_get("origins") or [str(pd.Timestamp(o).date()) for o in sorted(pd.unique(
         evaluation.forecasts["origin"]))]
-    specs = man.get("model_specs", {})
-    models = man.get("models") or list(pd.unique(evaluation.forecasts["model"]))
-    counts = man.get("counts", {})
+    specs = man_get("model_specs", {})
+    models = man_get("models") or list(pd.unique(evaluation.forecasts["model"]))
+    counts = man_get("counts", {})
     rows = [
-        ("run", man.get("name", "")),
-        ("spec", man.get("spec", "")),
-        ("spec hash", man.get("spec_hash", "")),
-        ("store", man.get("store", "")),
-        ("store checksum", man.get("store_checksum", "")),
-        ("store batches", man.get("store_batches", "")),
-        ("mode", man.get("mode", "")),
+        ("run", man_get("name", "")),
+        ("spec", man_get("spec", "")),
+        ("spec hash", man_get("spec_hash", "")),
+        ("store", man_get("store", "")),
+        ("store checksum", man_get("store_checksum", "")),
+        ("store batches", man_get("store_batches", "")),
+        ("mode", man_get("mode", "")),
         ("truth", evaluation.truth),
         ("benchmark", evaluation.benchmark),
         ("origins", f"{len(origins)} ({origins[0]} to {origins[-1]})" if origins else "0"),
         ("models", ", ".join(f"{m} ({specs[m]['type']})" if m in specs and isinstance(specs[m], dict)
                              and "type" in specs[m] else str(m) for m in models)),
-        ("targets", ", ".join(map(str, man.get("targets", _variables(evaluation))))),
-        ("horizons", format_horizons(man.get("horizons") or pd.unique(evaluation.forecasts["horizon"]))),
-        ("draws per forecast", man.get("draws", "")),
-        ("seed", man.get("seed", "")),
+        ("targets", ", ".join(map(str, man_get("targets", _variables(evaluation))))),
+        ("horizons", format_horizons(man_get("horizons") or pd.unique(evaluation.forecasts["horizon"]))),
+        ("draws per forecast", man_get("draws", "")),
+        ("seed", man_get("seed", "")),
         ("sub-periods", ", ".join(map(str, evaluation.subperiod_names))),
         ("recession dating", evaluation.chronology_source),
         ("tasks", ", ".join(f"{k} {v}" for k, v in counts.items()) if counts else ""),
-        ("run created", man.get("created", "")),
+        ("run created", man_get("created", "")),
     ]
     return pd.DataFrame(rows, columns=["item", "value"]).astype({"value": str})
 
@@ -135,7 +143,7 @@ def _summary(rep, ev, variables) -> str:
                "note"),
             _p("Caution: " + CAUTION, "note"),
             "<h3>What was run</h3>", rep.table(FrameTable("run_summary", "What was run", _run_frame(ev)))]
-    versions = (ev.manifest or {}).get("versions") or {}
+    versions = manifest_value(ev, "versions", None) or {}
     if versions:
         vf = pd.DataFrame(sorted(versions.items()), columns=["package", "version"]).astype(str)
         body += ["<h3>Package versions</h3>", rep.table(FrameTable("versions", "Package versions", vf))]
@@ -290,7 +298,7 @@ def _changes(rep, ev, since) -> str:
 
 
 def _failures(rep, ev) -> str:
-    fails = (ev.manifest or {}).get("failures") or []
+    fails = list(manifest_value(ev, "failures", None) or [])
     body = ["<h3>Failed tasks</h3>"]
     if fails:
         ff = pd.DataFrame(fails)

@@ -1,8 +1,15 @@
-"""The backtest spec (TOML): parse, validate once, explain errors.
+"""The backtest spec (TOML): parse into frozen, typed sections, validate once, explain errors.
 
 A spec names the store, the variables and how each is transformed, the targets and horizons,
 the origins schedule, the models, the number of draws and the seed, the truths and
 sub-periods to score, and the run directory. Unknown keys are errors: a typo must not pass.
+Everything a run would refuse later is refused here, so ``harness run --explain`` catches it
+(exit code 2, naming the file, line and key).
+
+**A spec is code.** A model type ``path/to/file.py:Class`` or ``package.module:Class`` imports
+and runs that code when the spec is read (to check the model's parameters). Run only specs you
+trust. Modules are imported only from the paths the spec names (a file path, relative to the
+spec) or from installed packages, never implicitly from the current directory.
 
 Example::
 
@@ -48,56 +55,97 @@ Example::
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import json
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
+from harness.constraints import Options, check_value, describe_alternatives
 from harness.errors import SpecError
-from vintages import CONVERSIONS, FREQS, MODES, PARTIAL_POLICIES, POLICIES, TRANSFORMS
+from harness.spec.sections import (
+    NAME,
+    ModelSpec,
+    RunSection,
+    ScoringSection,
+    SubPeriod,
+    TargetsSection,
+)
 
-RUN_KEYS = {"store", "out", "seed", "draws", "freq", "policy", "mode", "cache", "name"}
-SECTION_KEYS = {"run", "origins", "variables", "targets", "models", "scoring"}
-VARIABLE_KEYS = {"transform", "convert", "partial"}  # partial: keep | drop (default: drop for targets)
-TARGET_KEYS = {"variables", "horizons"}
-SCORING_KEYS = {"benchmark", "truths", "truth", "chronology", "cycle_variable", "subperiods",
-                "quantile_levels", "coverage_levels", "min_phase", "min_cycle"}
-_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_\-]{0,63}$")
+SECTION_KEYS = ("models", "origins", "run", "scoring", "targets", "variables")
+REQUIRED_SECTIONS = ("run", "origins", "variables", "targets", "models")
+VARIABLE_KEYS = ("convert", "partial", "transform")
+_NAME = re.compile(f"^{NAME}$")
 
 
 @dataclass(frozen=True)
-class ModelSpec:
-    """One model of the spec: its label, type (registered name or ``package.module:Class``), parameters."""
+class OriginsSection:
+    """``[origins]``: the schedule rule and its options (checked by :func:`vintages.parse_schedule`)."""
 
-    name: str
-    type: str
-    params: dict[str, Any]
+    rule: str
+    options: dict[str, Any] = field(default_factory=dict)
+
+    def as_mapping(self) -> dict[str, Any]:
+        """The mapping :func:`vintages.parse_schedule` reads."""
+        return {"rule": self.rule, **self.options}
 
 
 @dataclass(frozen=True)
 class Spec:
-    """A validated spec. Paths are absolute. ``raw`` is the parsed TOML as written."""
+    """A validated spec: frozen sections; paths are absolute; ``raw`` is the TOML as written."""
 
     path: Path
-    store: Path
-    out: Path
-    seed: int
-    draws: int
-    freq: str
-    policy: str
-    mode: str
-    origins: dict[str, Any]
-    variables: dict[str, dict[str, Any]]
-    targets: tuple[str, ...]
-    horizons: tuple[int, ...]
-    models: tuple[ModelSpec, ...]
-    scoring: dict[str, Any]
     raw: dict[str, Any] = field(repr=False)
-    cache: Path | None = None
-    name: str = "run"
+    run: RunSection
+    origins: OriginsSection
+    variables: dict[str, Any]  # name -> vintages.SeriesSpec, in the spec's order
+    targets: TargetsSection
+    models: tuple[ModelSpec, ...]
+    scoring: ScoringSection
+
+    # the run section's values, read often
+    @property
+    def store(self) -> Path:
+        return self.run.store
+
+    @property
+    def out(self) -> Path:
+        return self.run.out
+
+    @property
+    def seed(self) -> int:
+        return self.run.seed
+
+    @property
+    def draws(self) -> int:
+        return self.run.draws
+
+    @property
+    def freq(self) -> str:
+        return self.run.freq
+
+    @property
+    def policy(self) -> str:
+        return self.run.policy
+
+    @property
+    def mode(self) -> str:
+        return self.run.mode
+
+    @property
+    def name(self) -> str:
+        return self.run.name
+
+    @property
+    def cache_dir(self) -> Path:
+        return self.run.cache or (self.run.out / "tasks")
+
+    @property
+    def benchmark(self) -> str:
+        return self.scoring.benchmark
 
     def hash(self) -> str:
         """Digest of the spec's content (not of its file name or location)."""
@@ -109,68 +157,62 @@ class Spec:
                 return m
         raise SpecError(f"{self.path}: no model named {name!r}; models: {sorted(m.name for m in self.models)}")
 
-    @property
-    def cache_dir(self) -> Path:
-        return self.cache or (self.out / "tasks")
+    def series(self) -> dict[str, dict[str, Any]]:
+        """Variables as plain mappings (JSON-able; what the run manifest stores)."""
+        return {n: {k: v for k, v in (("transform", s.transform), ("convert", s.convert),
+                                       ("partial", s.partial)) if v is not None}
+                for n, s in self.variables.items()}
 
-    def with_overrides(self, **kw) -> Spec:
-        """A copy with some fields replaced (e.g. ``out``, ``mode``), validated values only."""
-        from dataclasses import replace
-
-        return replace(self, **kw)
+    def with_run(self, **changes) -> Spec:
+        """A copy with some ``[run]`` values replaced (e.g. ``out``, ``mode``, ``cache``)."""
+        return replace(self, run=replace(self.run, **changes))
 
 
 def _err(path, where: str, msg: str) -> SpecError:
     return SpecError(f"{path}: {where}: {msg}")
 
 
-def _check_keys(path, where: str, table: dict, allowed: set[str], required: tuple[str, ...] = ()) -> None:
-    if not isinstance(table, dict):
-        raise _err(path, where, f"expected a table, got {type(table).__name__}")
+def _short(value: Any, limit: int = 80) -> str:
+    """``repr`` of a value, cut with an ellipsis (a huge cell must not flood the error line)."""
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
+def _check(path, where: str, accepts, value: Any, *, toml: bool = True) -> Any:
+    ok, coerced = check_value(accepts, value, toml=toml)
+    if ok:
+        return coerced
+    if len(accepts) == 1 and isinstance(accepts[0], Options):
+        raise _err(path, where, f"{_short(value)} is not allowed; expected one of "
+                   f"{', '.join(sorted(accepts[0].values))}")
+    raise _err(path, where, f"expected {describe_alternatives(accepts)}, got {_short(value)}")
+
+
+def _table(path, where: str, value: Any) -> dict:
+    if not isinstance(value, dict):
+        raise _err(path, where, f"expected a table, got {type(value).__name__} {_short(value)}")
+    return value
+
+
+def parse_section(cls, table: Any, where: str, path) -> dict[str, Any]:
+    """Check a TOML table against a section class's declared keys; return the checked values.
+
+    Unknown keys are refused (listing the allowed ones), required keys must be present, and each
+    value must satisfy its declared constraints.
+    """
+    table = _table(path, where, table)
+    decl = {f.name: f for f in fields(cls) if f.metadata}
     for k in table:
-        if k not in allowed:
-            raise _err(path, where, f"unknown key {k!r}; allowed keys: {', '.join(sorted(allowed))}")
-    for k in required:
-        if k not in table:
-            raise _err(path, where, f"missing required key {k!r}")
-
-
-def _choice(path, where, value, allowed) -> str:
-    if value not in allowed:
-        raise _err(path, where, f"{value!r} is not allowed; expected one of {', '.join(sorted(allowed))}")
-    return value
-
-
-def _int(path, where, value, *, minimum=None) -> int:
-    if isinstance(value, bool) or not isinstance(value, int):
-        raise _err(path, where, f"expected an integer, got {value!r}")
-    if minimum is not None and value < minimum:
-        raise _err(path, where, f"must be ≥ {minimum}, got {value}")
-    return value
-
-
-def _date(path, where, value) -> str:
-    import datetime as dt
-
-    if isinstance(value, dt.date):
-        return value.isoformat()
-    if not isinstance(value, str) or not re.match(r"^\d{4}-\d{2}-\d{2}$", value):
-        raise _err(path, where, f"expected a date YYYY-MM-DD, got {value!r}")
-    try:
-        dt.date.fromisoformat(value)
-    except ValueError:
-        raise _err(path, where, f"{value!r} is not a valid calendar date") from None
-    return value
-
-
-def _period(path, where, value, freq) -> str:
-    from vintages import parse_periods
-
-    o, f = parse_periods([str(value)])
-    if f[0] != freq:
-        raise _err(path, where, f"expected a period of frequency {freq} such as "
-                   f"{'2009Q1' if freq == 'Q' else '2009-01'}, got {value!r}")
-    return str(value)
+        if k not in decl:
+            raise _err(path, where, f"unknown key {k!r}; allowed keys: {', '.join(sorted(decl))}")
+    out = {}
+    for name, f in decl.items():
+        if name not in table:
+            if f.metadata.get("required"):
+                raise _err(path, where, f"missing required key {name!r}")
+            continue
+        out[name] = _check(path, f"{where} {name}", f.metadata["accepts"], table[name])
+    return out
 
 
 def load_spec(path: str | Path, *, out: str | Path | None = None, check_store: bool = True) -> Spec:
@@ -183,27 +225,44 @@ def load_spec(path: str | Path, *, out: str | Path | None = None, check_store: b
     out : path-like, optional
         Override the run directory (``[run] out``).
     check_store : bool
-        Require the store directory to exist.
+        Require the store directory (and a chronology file) to exist.
+
+    Returns
+    -------
+    Spec
 
     Raises
     ------
     SpecError
-        Naming the file, the key and what was expected.
+        Naming the file, the line, the key and what was expected.
     """
     path = Path(path).resolve()
     try:
-        raw = tomllib.loads(path.read_text())
+        data = path.read_bytes()
     except FileNotFoundError:
         raise SpecError(f"{path}: spec file not found") from None
+    except IsADirectoryError:
+        raise SpecError(f"{path}: is a directory, expected a spec file (TOML)") from None
+    except OSError as exc:
+        raise SpecError(f"{path}: cannot read the spec file: {exc.strerror}") from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise SpecError(f"{path}, line {line}: not UTF-8 text (byte {exc.start}); save the spec "
+                        "as UTF-8") from None
+    try:
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"{path}: not valid TOML: {exc}") from None
+        raise SpecError(f"{path}: not valid TOML: {str(exc).splitlines()[0]}") from None
     try:
         return parse_spec(raw, path, out=out, check_store=check_store)
     except SpecError as exc:
-        line = _locate(path.read_text(), str(exc)[len(str(path)) + 2:])
+        msg = str(exc)[len(str(path)) + 2:]
+        line = _locate(text, msg)
         if line is None:
             raise
-        raise SpecError(f"{path}, line {line}: {str(exc)[len(str(path)) + 2:]}") from None
+        raise SpecError(f"{path}, line {line}: {msg}") from None
 
 
 def _locate(text: str, message: str) -> int | None:
@@ -233,109 +292,174 @@ def _locate(text: str, message: str) -> int | None:
     return start + 1
 
 
-def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store: bool = True) -> Spec:
-    """Validate an already-parsed spec dictionary (see :func:`load_spec`)."""
-    path = Path(path)
-    base = path.parent if path.name != "<spec>" else Path.cwd()
-    _check_keys(path, "top level", raw, SECTION_KEYS, required=("run", "origins", "variables", "targets", "models"))
-    run = raw["run"]
-    _check_keys(path, "[run]", run, RUN_KEYS, required=("store",))
-    store = (base / str(run["store"])).resolve()
-    if check_store and not (store / "manifest.json").is_file():
-        raise _err(path, "[run] store", f"no vintage store at {store} (create one with 'harness vintages init')")
-    out_dir = Path(out).resolve() if out is not None else (base / str(run.get("out", "runs/" + path.stem))).resolve()
-    seed = _int(path, "[run] seed", run.get("seed", 0), minimum=0)
-    draws = _int(path, "[run] draws", run.get("draws", 1000), minimum=10)
-    freq = _choice(path, "[run] freq", run.get("freq", "Q"), FREQS)
-    policy = _choice(path, "[run] policy", run.get("policy", "keep"), POLICIES)
-    mode = _choice(path, "[run] mode", run.get("mode", "real-time"), MODES)
-    cache = (base / str(run["cache"])).resolve() if "cache" in run else None
-    name = str(run.get("name", path.stem))
-
-    origins = dict(raw["origins"])
-    if not isinstance(origins, dict) or "rule" not in origins:
-        raise _err(path, "[origins]", "missing required key 'rule' (explicit, quarterly, monthly, after_release)")
-    for k in ("start", "end"):
-        if k in origins:
-            origins[k] = _date(path, f"[origins] {k}", origins[k])
-    if "dates" in origins:
-        if not isinstance(origins["dates"], list) or not origins["dates"]:
-            raise _err(path, "[origins] dates", "expected a non-empty list of dates")
-        origins["dates"] = [_date(path, f"[origins] dates[{i}]", d) for i, d in enumerate(origins["dates"])]
+def _date(path, where, value) -> str:
+    if isinstance(value, dt.date) and not isinstance(value, dt.datetime):
+        return value.isoformat()
+    if not isinstance(value, str) or not re.match(r"^[0-9]{4}-[0-9]{2}-[0-9]{2}$", value):
+        raise _err(path, where, f"expected a date YYYY-MM-DD, got {_short(value)}")
     try:
-        from vintages import parse_schedule
+        dt.date.fromisoformat(value)
+    except ValueError:
+        raise _err(path, where, f"{value!r} is not a valid calendar date") from None
+    return value
 
-        parse_schedule(origins, validate_only=True)
+
+def _period(path, where, value, freq) -> str:
+    from vintages import parse_periods
+
+    o, f = parse_periods([str(value)])
+    if f[0] != freq:
+        raise _err(path, where, f"expected a period of frequency {freq} such as "
+                   f"{'2009Q1' if freq == 'Q' else '2009-01'}, got {_short(value)}")
+    return str(value)
+
+
+def _inside(child: Path, parent: Path) -> bool:
+    try:
+        child.relative_to(parent)
+    except ValueError:
+        return False
+    return True
+
+
+def _run_section(raw, path: Path, base: Path, out, check_store: bool) -> RunSection:
+    v = parse_section(RunSection, raw["run"], "[run]", path)
+    store = (base / str(v["store"])).resolve()
+    if check_store and not (store / "manifest.json").is_file():
+        raise _err(path, "[run] store", f"no vintage store at {store} (create one with 'harness vintages "
+                   "init')")
+    out_dir = (Path(out).resolve() if out is not None else
+               (base / str(v.get("out") or f"runs/{path.stem}")).resolve())
+    if _inside(out_dir, store) or _inside(store, out_dir):
+        raise _err(path, "[run] out", f"the run directory {out_dir} must lie outside the store {store} "
+                   "(a store holds only its release log)")
+    if out_dir.exists() and not out_dir.is_dir():
+        raise _err(path, "[run] out", f"{out_dir} is a file; expected a directory for the run")
+    cache = (base / str(v["cache"])).resolve() if v.get("cache") else None
+    if cache is not None and (_inside(cache, store) or (cache.exists() and not cache.is_dir())):
+        raise _err(path, "[run] cache", f"{cache} must be a directory outside the store {store}")
+    return RunSection(store=store, out=out_dir, seed=v.get("seed", 0), draws=v.get("draws", 1000),
+                      freq=v.get("freq", "Q"), policy=v.get("policy", "keep"),
+                      mode=v.get("mode", "real-time"), cache=cache, name=v.get("name") or path.stem)
+
+
+def _origins_section(raw, path: Path) -> OriginsSection:
+    table = _table(path, "[origins]", raw["origins"])
+    if "rule" not in table:
+        raise _err(path, "[origins]", "missing required key 'rule' (after_release, explicit, monthly, "
+                   "quarterly)")
+    opts = {k: v for k, v in table.items() if k != "rule"}
+    for k in ("start", "end"):
+        if k in opts:
+            opts[k] = _date(path, f"[origins] {k}", opts[k])
+    if "dates" in opts:
+        if not isinstance(opts["dates"], list) or not opts["dates"]:
+            raise _err(path, "[origins] dates", "expected a non-empty list of dates")
+        opts["dates"] = [_date(path, f"[origins] dates[{i}]", d) for i, d in enumerate(opts["dates"])]
+    if "start" in opts and "end" in opts and opts["start"] > opts["end"]:
+        raise _err(path, "[origins] end", f"end {opts['end']} lies before start {opts['start']}")
+    from vintages import parse_schedule
+
+    try:
+        parse_schedule({"rule": table["rule"], **opts}, validate_only=True)
     except (ValueError, TypeError) as exc:
         raise _err(path, "[origins]", str(exc)) from None
+    return OriginsSection(str(table["rule"]), opts)
 
-    variables = raw["variables"]
-    if not isinstance(variables, dict) or not variables:
+
+def _variables_section(raw, path: Path, targets: list) -> dict[str, Any]:
+    from vintages import CONVERSIONS, PARTIAL_POLICIES, TRANSFORMS, SeriesSpec
+
+    variables = _table(path, "[variables]", raw["variables"])
+    if not variables:
         raise _err(path, "[variables]", "expected at least one [variables.NAME] table")
-    vspec = {}
+    out = {}
     for vname, v in variables.items():
         where = f"[variables.{vname}]"
-        if not _NAME.match(vname):
+        if not _NAME.match(vname) or "-" in vname:
             raise _err(path, where, "variable names are letters, digits and '_'")
-        _check_keys(path, where, v, VARIABLE_KEYS)
-        t = v.get("transform", "level")
-        if t not in TRANSFORMS:  # built-in and registered transformations
-            raise _err(path, f"{where} transform", f"{t!r} is not allowed; expected one of "
-                       f"{', '.join(sorted(TRANSFORMS))}")
-        d = {"transform": t}
-        if "convert" in v:
-            d["convert"] = _choice(path, f"{where} convert", v["convert"], CONVERSIONS)
-        if "partial" in v:
-            d["partial"] = _choice(path, f"{where} partial", v["partial"], PARTIAL_POLICIES)
-        vspec[vname] = d
+        v = _table(path, where, v)
+        for k in v:
+            if k not in VARIABLE_KEYS:
+                raise _err(path, where, f"unknown key {k!r}; allowed keys: {', '.join(VARIABLE_KEYS)}")
+        t = _check(path, f"{where} transform", (Options(*TRANSFORMS),), v.get("transform", "level"))
+        conv = _check(path, f"{where} convert", (Options(*CONVERSIONS),), v["convert"]) if "convert" in v else None
+        part = _check(path, f"{where} partial", (Options(*PARTIAL_POLICIES),), v["partial"]) if "partial" in v else None
+        if conv is not None and part is None:
+            # a partially observed quarter of a *target* would count as already observed and make
+            # its nowcast degenerate: by default targets drop partial quarters, indicators keep them
+            part = "drop" if vname in targets else "keep"
+        out[vname] = SeriesSpec(transform=t, convert=conv, partial=part)
+    return out
 
-    tg = raw["targets"]
-    targets_listed = tg.get("variables", []) if isinstance(tg, dict) else []
-    for vname, d in vspec.items():
-        # a partially observed quarter of a *target* would count as already observed and make
-        # its nowcast degenerate: by default targets drop partial quarters, indicators keep them
-        if "convert" in d and "partial" not in d:
-            d["partial"] = "drop" if vname in targets_listed else "keep"
-    _check_keys(path, "[targets]", tg, TARGET_KEYS, required=("variables", "horizons"))
-    tv = tg["variables"]
-    if not isinstance(tv, list) or not tv:
-        raise _err(path, "[targets] variables", "expected a non-empty list of variable names")
-    for t in tv:
-        if t not in vspec:
-            raise _err(path, "[targets] variables", f"{t!r} is not among [variables]: {', '.join(sorted(vspec))}")
-    h = tg["horizons"]
+
+def _targets_section(raw, path: Path, variables: dict) -> TargetsSection:
+    table = _table(path, "[targets]", raw["targets"])
+    v = parse_section(TargetsSection, table, "[targets]", path)
+    for t in v["variables"]:
+        if t not in variables:
+            raise _err(path, "[targets] variables", f"{t!r} is not among [variables]: "
+                       f"{', '.join(sorted(variables))}")
+    if len(set(v["variables"])) != len(v["variables"]):
+        raise _err(path, "[targets] variables", "each target may appear once")
+    h = table["horizons"]
     if isinstance(h, dict):
-        _check_keys(path, "[targets] horizons", h, {"min", "max"}, required=("min", "max"))
-        lo = _int(path, "[targets] horizons.min", h["min"])
-        hi = _int(path, "[targets] horizons.max", h["max"])
+        for k in h:
+            if k not in ("min", "max"):
+                raise _err(path, "[targets] horizons", f"unknown key {k!r}; allowed keys: max, min")
+        for k in ("min", "max"):
+            if k not in h:
+                raise _err(path, "[targets] horizons", f"missing required key {k!r}")
+        lo = _check(path, "[targets] horizons.min", (_h(),), h["min"])
+        hi = _check(path, "[targets] horizons.max", (_h(),), h["max"])
         if hi < lo:
             raise _err(path, "[targets] horizons", f"empty range: max {hi} < min {lo}")
         horizons = tuple(range(lo, hi + 1))
-    elif isinstance(h, list) and h:
-        horizons = tuple(sorted({_int(path, "[targets] horizons", x) for x in h}))
     else:
-        raise _err(path, "[targets] horizons", "expected a list of integers or {min = -1, max = 8}")
-    if min(horizons) < -12 or max(horizons) > 40:
-        raise _err(path, "[targets] horizons", f"horizons must lie in -12…40, got {min(horizons)}…{max(horizons)}")
+        horizons = tuple(sorted(set(v["horizons"])))
+    return TargetsSection(tuple(v["variables"]), horizons)
 
-    models_raw = raw["models"]
-    if not isinstance(models_raw, dict) or not models_raw:
-        raise _err(path, "[models]", "expected at least one [models.NAME] table")
+
+def _h():
+    from harness.constraints import Interval
+
+    return Interval(int, -12, 40)
+
+
+def _resolve_type(type_name: str, base: Path) -> str:
+    """A model type ``file.py:Class`` becomes an absolute path (resolved relative to the spec)."""
+    mod, sep, attr = type_name.partition(":")
+    if sep and (mod.endswith(".py") or "/" in mod or "\\" in mod):
+        return f"{(base / mod).resolve()}:{attr}"
+    return type_name
+
+
+def _models_section(raw, path: Path, base: Path) -> tuple[ModelSpec, ...]:
+    from harness.constraints import coerce_toml, validate_params
     from harness.models.base import available_models, get_model_class
 
-    models = []
+    models_raw = _table(path, "[models]", raw["models"])
+    if not models_raw:
+        raise _err(path, "[models]", "expected at least one [models.NAME] table")
+    out = []
     for mname, m in models_raw.items():
         where = f"[models.{mname}]"
         if not _NAME.match(mname):
             raise _err(path, where, "model names are letters, digits, '_' and '-'")
-        if not isinstance(m, dict) or "type" not in m:
+        m = _table(path, where, m)
+        if "type" not in m:
             raise _err(path, where, f"missing required key 'type' (one of {', '.join(available_models())} "
-                       "or package.module:Class)")
+                       "or package.module:Class or path/to/file.py:Class)")
+        if not isinstance(m["type"], str) or not m["type"]:
+            raise _err(path, f"{where} type", f"expected a registered name or 'package.module:Class', "
+                       f"got {_short(m['type'])}")
+        type_name = _resolve_type(m["type"], base)
         params = {k: v for k, v in m.items() if k != "type"}
         try:
-            cls = get_model_class(m["type"])
-        except (ValueError, ImportError, AttributeError) as exc:
-            raise _err(path, f"{where} type", str(exc)) from None
+            cls = get_model_class(type_name)
+        except Exception as exc:  # a user's module can fail to import in any way: name it, don't trace
+            raise _err(path, f"{where} type", str(exc).splitlines()[0] if str(exc) else
+                       type(exc).__name__) from None
         allowed = _init_params(cls)
         if allowed is not None:
             for k in params:
@@ -343,8 +467,6 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
                     raise _err(path, where, f"unknown key {k!r}; parameters of {m['type']}: "
                                f"{', '.join(sorted(allowed)) or '(none)'}")
         try:
-            from harness.models.params import coerce_toml, validate_params
-
             params = {k: coerce_toml(cls, k, v) for k, v in params.items()}
             model = cls(**params)
             full = model.params() if callable(getattr(model, "params", None)) else params
@@ -354,67 +476,108 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
         except ValueError as exc:
             bad = re.search(r"parameter '([^']+)'", str(exc))
             raise _err(path, f"{where} {bad.group(1)}" if bad else where, str(exc)) from None
-        models.append(ModelSpec(mname, m["type"], params))
+        out.append(ModelSpec(mname, type_name, params))
+    return tuple(out)
 
-    scoring = dict(raw.get("scoring", {}))
-    _check_keys(path, "[scoring]", scoring, SCORING_KEYS)
-    if "benchmark" in scoring and scoring["benchmark"] not in models_raw:
-        raise _err(path, "[scoring] benchmark", f"{scoring['benchmark']!r} is not a model of this spec; "
-                   f"models: {', '.join(sorted(models_raw))}")
-    scoring.setdefault("benchmark", models[0].name)
-    truths = scoring.get("truths", ["first", "latest"])
-    if isinstance(truths, str):
-        truths = [truths]
+
+def _init_params(cls) -> set[str] | None:
+    """Keyword parameters a model class accepts (None when it takes ``**kwargs``)."""
+    from harness.models.introspect import constructor_params
+
+    return constructor_params(cls)
+
+
+def _scoring_section(raw, path: Path, base: Path, models, variables, freq: str,
+                     check_store: bool) -> ScoringSection:
     from vintages import parse_truth
 
-    for t in truths:
+    table = dict(_table(path, "[scoring]", raw.get("scoring", {})))
+    v = parse_section(ScoringSection, table, "[scoring]", path)
+    names = [m.name for m in models]
+    bench = v.get("benchmark") or names[0]
+    if bench not in names:
+        raise _err(path, "[scoring] benchmark", f"{bench!r} is not a model of this spec; models: "
+                   f"{', '.join(sorted(names))}")
+    truths = v.get("truths", ("first", "latest"))
+    truths = (truths,) if isinstance(truths, str) else tuple(truths)
+    if not truths:
+        raise _err(path, "[scoring] truths", "expected at least one truth rule")
+    for i, t in enumerate(truths):
         try:
-            parse_truth(t)
+            truths = truths[:i] + (str(parse_truth(t)),) + truths[i + 1:]
         except ValueError as exc:
             raise _err(path, "[scoring] truths", str(exc)) from None
-    scoring["truths"] = list(truths)
-    scoring.setdefault("truth", truths[0])
-    if scoring["truth"] not in truths:
-        scoring["truths"] = [scoring["truth"]] + scoring["truths"]
-    if "chronology" in scoring:
-        chron = (base / str(scoring["chronology"])).resolve()
+    truth = v.get("truth") or truths[0]
+    try:
+        truth = str(parse_truth(truth))
+    except ValueError as exc:
+        raise _err(path, "[scoring] truth", str(exc)) from None
+    if truth not in truths:
+        truths = (truth,) + truths
+    chron = None
+    if v.get("chronology"):
+        chron = (base / str(v["chronology"])).resolve()
         if check_store and not chron.is_file():
             raise _err(path, "[scoring] chronology", f"file not found: {chron}")
-        scoring["chronology"] = str(chron)
-    if "cycle_variable" in scoring and scoring["cycle_variable"] not in vspec:
-        raise _err(path, "[scoring] cycle_variable", f"{scoring['cycle_variable']!r} is not among [variables]")
-    sub = scoring.get("subperiods", {})
-    if not isinstance(sub, dict):
-        raise _err(path, "[scoring] subperiods", "expected a table NAME = [START, END]")
-    clean = {}
-    for sname, rng in sub.items():
+    cyc = v.get("cycle_variable")
+    if cyc is not None and cyc not in variables:
+        raise _err(path, "[scoring] cycle_variable", f"{cyc!r} is not among [variables]")
+    subs = []
+    for sname, rng in (table.get("subperiods") or {}).items():
         where = f"[scoring.subperiods] {sname}"
         if sname in ("full", "recession", "expansion"):
             raise _err(path, where, "'full', 'recession' and 'expansion' are reserved names")
         if not isinstance(rng, list) or len(rng) != 2:
             raise _err(path, where, "expected [START, END] periods, e.g. [\"2009Q1\", \"2010Q2\"]")
         a, b = (_period(path, where, x, freq) for x in rng)
-        clean[sname] = (a, b)
-    scoring["subperiods"] = clean
-    for k in ("quantile_levels", "coverage_levels"):
-        if k in scoring:
-            lv = scoring[k]
-            if not isinstance(lv, list) or not all(isinstance(x, float | int) and 0 < x < 1 for x in lv):
-                raise _err(path, f"[scoring] {k}", "expected a list of numbers strictly between 0 and 1")
+        from vintages import parse_periods
 
-    return Spec(path=path, store=store, out=out_dir, seed=seed, draws=draws, freq=freq, policy=policy, mode=mode,
-                origins=origins, variables=vspec, targets=tuple(tv), horizons=horizons, models=tuple(models),
-                scoring=scoring, raw=raw, cache=cache, name=name)
+        (oa, ob), _ = parse_periods([a, b])
+        if oa > ob:
+            raise _err(path, where, f"starts ({a}) after it ends ({b}); expected [START, END]")
+        subs.append(SubPeriod(str(sname), a, b))
+    tests = {}
+    for tname, settings in (table.get("tests") or {}).items():
+        from harness.compare.registry import get_test
+
+        where = f"[scoring.tests.{tname}]"
+        try:
+            test = get_test(tname)
+            tests[tname] = dict(test.settings(_table(path, where, settings)))
+        except ValueError as exc:
+            raise _err(path, where, str(exc)) from None
+    levels = {}
+    for k in ("quantile_levels", "coverage_levels", "interval_levels"):
+        if v.get(k) is not None:
+            lv = tuple(v[k])
+            pct = [round(a * 100) for a in lv]
+            if any(abs(a * 100 - p) > 1e-9 for a, p in zip(lv, pct, strict=True)) or len(set(pct)) != len(pct):
+                raise _err(path, f"[scoring] {k}", "expected distinct whole percentages, e.g. [0.5, 0.8]")
+            levels[k] = lv
+    return ScoringSection(benchmark=bench, truths=truths, truth=truth, chronology=chron,
+                          cycle_variable=cyc, min_phase=v.get("min_phase"), min_cycle=v.get("min_cycle"),
+                          subperiods=tuple(subs), tests=tests, **levels)
 
 
-def _init_params(cls) -> set[str] | None:
-    """Keyword parameters a model class accepts (None when it takes ``**kwargs``)."""
-    import inspect
-
-    try:
-        sig = inspect.signature(cls.__init__)
-    except (TypeError, ValueError):
-        return None
-    if any(p.kind is p.VAR_KEYWORD for p in sig.parameters.values()):
-        return None
-    return {n for n, p in sig.parameters.items() if n != "self" and p.kind is not p.VAR_POSITIONAL}
+def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store: bool = True) -> Spec:
+    """Validate an already-parsed spec dictionary (see :func:`load_spec`)."""
+    path = Path(path)
+    base = path.parent if path.name != "<spec>" else Path.cwd()
+    if not isinstance(raw, dict):
+        raise _err(path, "top level", "expected TOML tables")
+    for k in raw:
+        if k not in SECTION_KEYS:
+            raise _err(path, "top level", f"unknown key {k!r}; allowed keys: {', '.join(SECTION_KEYS)}")
+    for k in REQUIRED_SECTIONS:
+        if k not in raw:
+            raise _err(path, "top level", f"missing required key {k!r}")
+    run = _run_section(raw, path, base, out, check_store)
+    origins = _origins_section(raw, path)
+    tg = raw["targets"] if isinstance(raw["targets"], dict) else {}
+    listed = tg.get("variables", []) if isinstance(tg.get("variables", []), list) else []
+    variables = _variables_section(raw, path, listed)
+    targets = _targets_section(raw, path, variables)
+    models = _models_section(raw, path, base)
+    scoring = _scoring_section(raw, path, base, models, variables, run.freq, check_store)
+    return Spec(path=path, raw=raw, run=run, origins=origins, variables=variables, targets=targets,
+                models=models, scoring=scoring)

@@ -53,3 +53,19 @@ def test_vintages_front_resolves():
     """Every name of ``vintages.__all__`` resolves (the lazy front has no stale entry)."""
     for name in vintages.__all__:
         assert getattr(vintages, name) is not None, name
+
+
+def test_public_names_never_collide_with_submodules():
+    """Every harness top-level name is the documented object on every access, even after all submodules load."""
+    code = ("import importlib, pkgutil, harness, types\n"
+            "for m in pkgutil.walk_packages(harness.__path__, 'harness.'):\n"
+            "    importlib.import_module(m.name)\n"
+            "bad = [n for n in harness.__all__ if isinstance(getattr(harness, n), types.ModuleType)]\n"
+            "print(bad, callable(harness.evaluate), harness.evaluate.__module__)")
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT)
+    assert res.stdout.strip() == "[] True harness.evaluation.evaluator", res.stdout + res.stderr
+    import harness
+
+    for name in harness.__all__:
+        obj = getattr(harness, name)
+        assert obj.__doc__, f"harness.{name} has no docstring"

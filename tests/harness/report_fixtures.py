@@ -292,8 +292,14 @@ def _subperiods(periods: pd.PeriodIndex, regimes: pd.Series) -> list[list[str]]:
     return out
 
 
-def _manifest(models, variables, horizons, origins, target_periods, draws, *, batches: int, failures) -> dict:
-    return {
+def _manifest(models, variables, horizons, origins, target_periods, draws, *, batches: int, failures):
+    """The fixture run's manifest, in the same versioned type a real run writes."""
+    from harness.backtest.manifest import FORMAT, RunManifest
+
+    return RunManifest.from_dict({"format": FORMAT, "backend": "loky", "jobs": 2, "tasks": [],
+                                  "ledger": "ledger-fixture.parquet",
+                                  "provenance": "provenance-fixture.parquet",
+                                  "ledger_digest": "0" * 64, "ledger_rows": 0, **{
         "name": "veldmark-fixture", "created": "2026-06-11T09:00:00+0000",
         "spec": "/tmp/veldmark/spec.toml", "spec_hash": "3f9a1c0e5b7d2468ace0",
         "store": "/tmp/veldmark/store", "store_checksum": "5e0c7a9b" * 8, "store_batches": batches,
@@ -307,11 +313,11 @@ def _manifest(models, variables, horizons, origins, target_periods, draws, *, ba
                    "failed": len(failures)},
         "failures": failures, "timings": {"total": 12.5},
         "versions": {"python": "3.11", "numpy": np.__version__, "pandas": pd.__version__},
-    }
+    }})
 
 
 def _evaluation(draws: xr.DataArray, truth: dict, truth_name: str, periods_all: pd.PeriodIndex,
-                manifest: dict, published_until: pd.Period) -> Evaluation:
+                manifest, published_until: pd.Period) -> Evaluation:
     """Score the ledger's draws against one truth and fill every Evaluation table."""
     models = [str(m) for m in draws["model"].values]
     variables = [str(v) for v in draws["variable"].values]

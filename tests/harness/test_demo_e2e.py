@@ -20,7 +20,10 @@ def test_reduced_demo_writes_every_file(tmp_path):
     lines = []
     paths = run_pipeline(spec, tmp_path, jobs=2, echo=lines.append)
     run = paths["run"]
-    for f in ("ledger.parquet", "provenance.parquet", "run.json", "spec.toml"):
+    from harness.backtest.manifest import RunManifest
+
+    man = RunManifest.read(run)
+    for f in (man.ledger, man.provenance, "run.json", "spec.toml"):
         assert (run / f).is_file(), f
     for f in ("forecast_scores.csv", "table.csv", "relative.csv", "tests.csv", "mcs.csv", "calibration.csv"):
         assert (run / "scores" / f).is_file(), f

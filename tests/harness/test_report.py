@@ -484,7 +484,7 @@ def test_changes_rejects_bad_arguments(bundle):
 def test_failures_and_missing_truths_are_listed(page, bundle):
     """The failed task shows its escaped error with the traceback in a details element; missing truths are listed."""
     sec = re.search(r'<section id="failures">(.*?)</section>', page, flags=re.S).group(1)
-    fail = bundle.evaluation.manifest["failures"][0]
+    fail = bundle.evaluation.manifest.failures[0]
     assert html.escape(fail["error"]) in sec
     assert "<details>" in sec and html.escape(fail["traceback"].splitlines()[-1]) in sec
     for _var, g in bundle.evaluation.missing.groupby("variable"):

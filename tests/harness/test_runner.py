@@ -131,4 +131,4 @@ def test_explain_prints_plan_without_running(tmp_path, small_store):
     out = CliRunner().invoke(app, ["run", str(s.path), "--explain"])
     assert out.exit_code == 0, out.output
     assert "tasks" in out.output and "rw = nochange" in out.output
-    assert not (s.out / "ledger.parquet").exists()
+    assert not (s.out / "run.json").exists() and not list(s.out.glob("ledger-*.parquet"))

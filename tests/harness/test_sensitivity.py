@@ -83,10 +83,10 @@ def test_without_revisions_all_truths_and_data_modes_agree(tmp_path):
     rt = read_ledger(spec.out)
     ps = read_ledger(res.pseudo_run)
     assert rt.draws.values.tobytes() == ps.draws.values.tobytes()
-    assert ps.manifest["counts"]["computed"] == 0  # same information sets, same keys: the cache answers
+    assert ps.manifest.counts["computed"] == 0  # same information sets, same keys: the cache answers
     # per forecast, every truth gives the same score wherever it is published (lag:365D is not yet
     # published for the last year of targets, so its cell means rest on fewer forecasts)
-    _, _, evs = truth_sensitivity(spec.out, spec.scoring["truths"])
+    _, _, evs = truth_sensitivity(spec.out, spec.scoring.truths)
     key = ["model", "origin", "variable", "horizon"]
     base = evs["first"].forecasts.set_index(key)["crps"]
     for t, ev in evs.items():

@@ -23,9 +23,9 @@ def good(tmp_path, small_store):
 def test_good_spec_parses(tmp_path, good):
     """A valid spec resolves paths, horizons and models."""
     s = load_spec(_write(tmp_path, good))
-    assert s.horizons == (-1, 0, 1, 2)
+    assert s.targets.horizons == (-1, 0, 1, 2)
     assert [m.name for m in s.models] == ["rw", "ar"]
-    assert s.scoring["benchmark"] == "rw"
+    assert s.scoring.benchmark == "rw"
     assert s.out == (tmp_path / "run").resolve()
 
 

@@ -1,0 +1,166 @@
+"""The run manifest (``run.json``): one versioned type, written and read here only.
+
+The manifest and the ledger form one unit: the manifest names the ledger and provenance files,
+which are content-addressed (``ledger-<digest>.parquet``) and written before the manifest, so a
+run killed at any moment leaves either the old manifest with its old ledger or the new pair.
+Readers refuse a manifest of an unknown format, and a ledger that does not agree with its
+manifest (naming both files).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import asdict, dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+from harness.errors import RunError
+from harness.spec.sections import ScoringSection
+
+FORMAT = "run-manifest/2"
+#: formats this version reads (the first wave wrote no format field: refused with a clear note)
+READABLE = (FORMAT,)
+
+
+@dataclass(frozen=True)
+class RunManifest:
+    """What a run was and what it produced.
+
+    Attributes
+    ----------
+    format : str
+        ``run-manifest/2``.
+    name, created, spec, spec_hash : str
+        The run's name, creation time (ISO), the spec file and the digest of its content.
+    store, store_checksum : str
+        The store read and its checksum at planning time; ``store_batches`` its batch count.
+    mode, policy, freq : str
+        Information-set settings.
+    seed, draws : int
+    models : tuple of str
+        Model labels in spec order; ``model_specs`` their types and parameters.
+    origins : tuple of str
+        ISO days; ``target_periods[i]`` the target period label per horizon at origin ``i``.
+    targets : tuple of str
+    horizons : tuple of int
+    variables : dict
+        Series specifications as written to the information sets.
+    scoring : ScoringSection
+        The spec's scoring section (benchmark, truths, sub-periods, test settings).
+    backend : str
+    jobs : int
+    counts : dict
+        ``total``, ``computed``, ``cached``, ``failed``.
+    tasks, failures : tuple of dict
+        One record per task; the failed ones with their error and traceback.
+    timings, versions : dict
+    ledger, provenance : str
+        File names (in the run directory) of the forecasts and their provenance.
+    ledger_digest : str
+        Digest of the set of completed task keys the ledger holds.
+    ledger_rows : int
+        Rows of the ledger file (checked on read).
+    """
+
+    name: str
+    created: str
+    spec: str
+    spec_hash: str
+    store: str
+    store_checksum: str
+    store_batches: int
+    mode: str
+    policy: str
+    freq: str
+    seed: int
+    draws: int
+    models: tuple[str, ...]
+    model_specs: dict[str, dict[str, Any]]
+    origins: tuple[str, ...]
+    targets: tuple[str, ...]
+    horizons: tuple[int, ...]
+    target_periods: tuple[tuple[str, ...], ...]
+    variables: dict[str, dict[str, Any]]
+    scoring: ScoringSection
+    backend: str
+    jobs: int
+    counts: dict[str, int]
+    tasks: tuple[dict[str, Any], ...]
+    failures: tuple[dict[str, Any], ...]
+    timings: dict[str, float]
+    versions: dict[str, Any]
+    ledger: str
+    provenance: str
+    ledger_digest: str
+    ledger_rows: int
+    diagnostics: dict[str, Any] = field(default_factory=dict)
+    format: str = FORMAT
+
+    @property
+    def benchmark(self) -> str:
+        return self.scoring.benchmark or self.models[0]
+
+    def to_dict(self) -> dict[str, Any]:
+        d = {f.name: getattr(self, f.name) for f in fields(self)}
+        d["scoring"] = self.scoring.as_dict()
+        return {"format": self.format, **{k: v for k, v in d.items() if k != "format"}}
+
+    def to_json(self) -> bytes:
+        return (json.dumps(self.to_dict(), indent=1, default=str) + "\n").encode()
+
+    def write(self, run_dir: Path) -> Path:
+        """Write ``run.json`` atomically (temporary file, fsync, rename)."""
+        from vintages import atomic_write_bytes
+
+        p = Path(run_dir) / "run.json"
+        try:
+            atomic_write_bytes(p, self.to_json())
+        except OSError as exc:
+            raise RunError(f"{p}: cannot write the run manifest: {exc.strerror or exc}") from exc
+        return p
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any], source: str = "run.json") -> RunManifest:
+        fmt = d.get("format") if isinstance(d, dict) else None
+        if fmt not in READABLE:
+            got = "no format field (written by an older version)" if fmt is None else f"format {fmt!r}"
+            raise RunError(f"{source}: {got}; this version reads {', '.join(READABLE)}. Rerun the "
+                           "spec with 'harness run' to rebuild the run directory (the task cache is "
+                           "reused)")
+        names = {f.name for f in fields(cls)}
+        missing = sorted(n for n in names if n not in d and n not in ("diagnostics", "format"))
+        if missing:
+            raise RunError(f"{source}: run manifest lacks {missing}; the file is damaged or was not "
+                           "written by harness")
+        kw = {k: v for k, v in d.items() if k in names}
+        kw["scoring"] = ScoringSection.from_dict(d["scoring"])
+        for k in ("models", "origins", "targets", "tasks", "failures"):
+            kw[k] = tuple(kw[k])
+        kw["horizons"] = tuple(int(h) for h in kw["horizons"])
+        kw["target_periods"] = tuple(tuple(x) for x in kw["target_periods"])
+        return cls(**kw)
+
+    @classmethod
+    def read(cls, run_dir: str | Path) -> RunManifest:
+        """Read and check ``RUN/run.json``.
+
+        Raises
+        ------
+        RunError
+            No manifest, unreadable JSON, or an unknown format (the message names the file).
+        """
+        p = Path(run_dir) / "run.json"
+        if not p.is_file():
+            raise RunError(f"{Path(run_dir)}: not a run directory (no run.json); run 'harness run SPEC' "
+                           "first")
+        try:
+            d = json.loads(p.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+            raise RunError(f"{p}: unreadable run manifest ({type(exc).__name__}: "
+                           f"{str(exc).splitlines()[0]})") from None
+        return cls.from_dict(d, str(p))
+
+
+def asdict_shallow(obj) -> dict[str, Any]:
+    """A dataclass as a dict of its fields (not recursive; for messages and tables)."""
+    return asdict(obj) if hasattr(obj, "__dataclass_fields__") else dict(obj)
