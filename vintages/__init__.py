@@ -28,6 +28,8 @@ _PUBLIC: dict[str, str] = {
     "StoreCorruptError": "vintages.errors",
     "StoreLockedError": "vintages.errors",
     "StoreNotFoundError": "vintages.errors",
+    "MetadataConflictError": "vintages.errors",
+    "FileAccessError": "vintages.errors",
     # option vocabularies
     "FREQS": "vintages._types",
     "LAYOUTS": "vintages._types",
@@ -37,6 +39,10 @@ _PUBLIC: dict[str, str] = {
     "open_store": "vintages.store",
     "atomic_write_bytes": "vintages.store",
     "sha256_file": "vintages.store",
+    "atomic_writer": "vintages.store",
+    "CleanupResult": "vintages.store",
+    "STORE_FORMAT": ("vintages.store", "FORMAT"),
+    "clear_verified_cache": "vintages.store",
     "read_releases": "vintages.ingest",
     "validate_table": "vintages.ingest",
     # periods
@@ -46,6 +52,10 @@ _PUBLIC: dict[str, str] = {
     "period_end": "vintages.periods",
     "period_of_date": "vintages.periods",
     "freq_of": "vintages.periods",
+    "period_problem": "vintages.periods",
+    "YEAR_MIN": "vintages.periods",
+    "YEAR_MAX": "vintages.periods",
+    "NO_PERIOD": "vintages.periods",
     # release cube
     "Cube": "vintages.cube",
     "Vintage": "vintages.cube",

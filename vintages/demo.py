@@ -69,7 +69,7 @@ import pandas as pd
 from scipy.signal import lfilter
 
 from vintages.periods import format_periods, parse_periods, period_end, period_index
-from vintages.store import VintageStore
+from vintages.store import VintageStore, atomic_write_bytes
 
 DEFAULT_SEED = 20261201
 CALENDAR_START = np.datetime64("1996-01-01", "D")
@@ -282,7 +282,7 @@ def write_chronology(path: str | os.PathLike, chronology_frame: pd.DataFrame | N
             f"write_chronology: chronology lacks column(s) {missing}; expected columns "
             f"['peak', 'trough'], got {sorted(map(str, frame.columns))}"
         )
-    frame[["peak", "trough"]].astype(str).to_csv(p, index=False)
+    atomic_write_bytes(p, frame[["peak", "trough"]].astype(str).to_csv(index=False).encode())
     return p
 
 

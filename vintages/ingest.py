@@ -11,6 +11,12 @@ Accepted layouts
     cell means "not published in that release".
 
 Periods are written ``2001Q3`` (quarterly) or ``2001-07`` (monthly); release dates ``YYYY-MM-DD``.
+Digits are ASCII ``0``-``9`` only and years lie in 1800-2200 (:data:`vintages.periods.YEAR_MIN`,
+:data:`~vintages.periods.YEAR_MAX`), for reference periods and release dates alike. Cells may be
+padded with ASCII spaces or tabs; any other control character (NUL, line breaks, ...) in a
+``variable``, ``period``, ``release`` or ``value`` cell is refused. A release dated more than a
+year after the ingest day is refused unless ``allow_future`` is given. Error messages show at
+most 60 characters of a cell.
 
 Where errors point
 ------------------
@@ -24,6 +30,7 @@ Where errors point
 from __future__ import annotations
 
 import csv
+import datetime as _dt
 import io
 import re
 from pathlib import Path
@@ -33,14 +40,28 @@ import pandas as pd
 
 from vintages._types import FREQS, LAYOUTS
 from vintages.errors import InputError
-from vintages.periods import format_periods, parse_periods, period_end
+from vintages.periods import (
+    YEAR_MAX,
+    YEAR_MIN,
+    format_periods,
+    parse_periods,
+    period_end,
+    period_problem,
+)
 
 REQUIRED = ("variable", "period", "release", "value")
 SAFE_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,63}$")
-_DATE_HEADER = re.compile(r"^\d{4}-\d{2}-\d{2}$")
+# ASCII digits only: [0-9], never \d (which matches full-width and other Unicode digits).
+_DATE_HEADER = re.compile(r"^[0-9]{4}-[0-9]{2}-[0-9]{2}$")
 # A day, optionally with a time of day (timestamps written by other tools); never a bare month.
-_DATE_CELL = re.compile(r"^\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)?$")
-_NAN_WORDS = ("nan", "+nan", "-nan")
+_DATE_CELL = re.compile(r"^[0-9]{4}-[0-9]{2}-[0-9]{2}(?:[T ][0-9]{2}:[0-9]{2}(?::[0-9]{2}(?:\.[0-9]+)?)?)?$")
+# A decimal number in ASCII (what pandas.to_numeric is then asked to convert).
+_NUMBER = re.compile(r"^[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$")
+_NONFINITE_WORDS = ("nan", "+nan", "-nan", "inf", "+inf", "-inf", "infinity", "+infinity", "-infinity")
+# Control characters (C0 but tab, DEL, C1) and the Unicode line/paragraph separators.
+_CONTROL_RE = re.compile("[\x00-\x08\x0a-\x1f\x7f-\x9f\u2028\u2029]")
+_BLANKS = " \t"  # what a cell may be padded with
+_SHOW = 60  # characters of a cell shown in a message
 _PARQUET_SUFFIXES = (".parquet", ".pq")
 
 
@@ -125,12 +146,15 @@ def _read_parquet(data: bytes, src: str) -> pd.DataFrame:
 
 def _read_csv(data: bytes, src: str) -> tuple[pd.DataFrame, list[str]]:
     """Read CSV bytes as text cells; return the frame (with ``_line``) and the header cells."""
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        raise InputError("cannot read file: UTF-16 text (byte-order mark); save it as UTF-8", file=src,
+                         line=1) from None
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         line = data[:exc.start].count(b"\n") + 1
         raise InputError(f"cannot read file: not UTF-8 text (byte {data[exc.start]:#04x} at offset "
-                         f"{exc.start})", file=src, line=line) from None
+                         f"{exc.start}); save it as UTF-8", file=src, line=line) from None
     try:
         # header=None: the header is row 0, so a data row longer than the header is an error
         # (with a header row pandas would silently take the extra field as an index).
@@ -139,6 +163,11 @@ def _read_csv(data: bytes, src: str) -> tuple[pd.DataFrame, list[str]]:
     except pd.errors.EmptyDataError:
         raise InputError("file is empty", file=src) from None
     except pd.errors.ParserError as exc:
+        eof = re.search(r"EOF inside string starting at row (\d+)", str(exc))
+        if eof is not None:
+            line, field = _unterminated(text, int(eof.group(1)))
+            raise InputError("unterminated quoted field: a '\"' opens here and is never closed",
+                             file=src, line=line, field=field) from None
         m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
         if m is None:
             raise InputError(_one_line(f"cannot read file: {type(exc).__name__}: {exc}"), file=src) from None
@@ -157,6 +186,23 @@ def _read_csv(data: bytes, src: str) -> tuple[pd.DataFrame, list[str]]:
     raw["_line"] = (np.asarray(starts[1:], dtype=np.int64) if starts is not None and len(starts) == n + 1
                     else np.arange(2, n + 2))
     return raw, header
+
+
+def _unterminated(text: str, row: int) -> tuple[int, str | None]:
+    """Physical line and header field of the record ``row`` (0-based, header = 0) whose quote
+    never closes (pandas counts records, and earlier quoted fields may span lines)."""
+    reader = csv.reader(io.StringIO(text))
+    header: list[str] = []
+    prev = 0
+    for k, rec in enumerate(reader):
+        if k == 0:
+            header = [c.strip() for c in rec]
+        if k == row:
+            # The open quote swallows the rest of the file into the record's last field.
+            col = len(rec) - 1
+            return prev + 1, (header[col] if 0 <= col < len(header) and row > 0 else None)
+        prev = reader.line_num
+    return prev + 1, None
 
 
 def _record_starts(text: str) -> list[int] | None:
@@ -207,7 +253,9 @@ def _triangle(raw: pd.DataFrame, variable: str, src: str) -> pd.DataFrame:
             raise InputError(f"column header {c!r} is not a release date YYYY-MM-DD",
                              file=src, line=1, field=c)
     vals = raw[dates].to_numpy(dtype=object)  # (row, release column)
-    filled = np.char.strip(vals.astype(str)) != ""
+    # Object strings, not NumPy unicode (which drops trailing NULs and would hide a "\x00" cell).
+    filled = np.array([[isinstance(x, str) and x.strip(_BLANKS) != "" for x in row] for row in vals],
+                      dtype=bool).reshape(vals.shape)
     r, c = np.nonzero(filled)  # row-major: the order a reader meets the cells
     if not len(r):
         raise InputError("the triangle holds no values", file=src)
@@ -235,7 +283,8 @@ def _valid_day(s: str) -> bool:
 def _text_blank(s: pd.Series) -> np.ndarray:
     if not _is_text(s):
         return np.asarray(s.isna())
-    return np.asarray(s.isna() | (s.astype(str).str.strip() == ""))
+    cells = _Cells(s)
+    return np.asarray(s.isna()) | cells.rows(cells.stripped == "")
 
 
 def _is_text(s: pd.Series) -> bool:
@@ -255,7 +304,7 @@ def _one_line(msg: str) -> str:
 
 def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
                    new_meta: dict[str, dict] | None = None, source: str | None = None,
-                   allow_early: bool = False) -> pd.DataFrame:
+                   allow_early: bool = False, allow_future: bool = False, today=None) -> pd.DataFrame:
     """Validate and normalise a long release table; return it ready to append.
 
     Parameters
@@ -271,6 +320,10 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
         File name for messages; defaults to ``df.attrs["source"]`` or ``"<table>"``.
     allow_early : bool
         Accept release dates on or before the end of the reference period.
+    allow_future : bool
+        Accept release dates more than a year after ``today`` (e.g. a published calendar).
+    today : date-like, optional
+        The ingest day (default: today's local date).
 
     Returns
     -------
@@ -284,9 +337,11 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
     InputError
         Naming file, line and field of the first bad cell (in reading order), for: a missing
         column, an unsafe variable name, an unparsable period or release date, a blank,
-        non-numeric, NaN or infinite value, a period of the wrong frequency for the variable,
-        a variable with mixed frequencies, a release dated on or before the end of its
-        reference period (unless ``allow_early``), duplicate cells with different values.
+        non-numeric, NaN or infinite value, a control character in a cell, non-ASCII digits,
+        a year outside 1800-2200, a period of the wrong frequency for the variable, a variable
+        with mixed frequencies, a release dated on or before the end of its reference period
+        (unless ``allow_early``) or more than a year after ``today`` (unless ``allow_future``),
+        duplicate cells with different values.
     """
     known = known or {}
     new_meta = new_meta or {}
@@ -312,21 +367,31 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
         return {"file": src, "line": int(lines[i]), "field": field}
 
     # --- cell checks: report the first bad cell in reading order, whatever its kind
-    var_codes, var_names, var_bad = _check_variables(df["variable"])
-    ords, freq = parse_periods(df["period"])
+    cells = {c: _text_cells(df[c]) for c in REQUIRED}
+    control = {c: _control_chars(cells[c], n) for c in REQUIRED}
+    var_codes, var_names, var_bad = _check_variables(df["variable"], cells["variable"])
+    ords, freq = parse_periods(_padded(cells["period"], df["period"]))
     period_bad = freq == ""
-    rel_days, rel_bad = _parse_releases(df["release"])
-    val, val_blank, val_nonnum, val_nonfinite = _parse_values(df["value"])
+    rel_days, rel_bad = _parse_releases(df["release"], cells["release"])
+    val, val_blank, val_nonnum, val_nonfinite = _parse_values(df["value"], cells["value"])
+
+    def ctl(c: str):
+        return lambda i: f"{c} cell {_show(_cell(df[c], i))} holds a control character; remove it"
+
     checks = [  # column order breaks ties on one row
-        (var_bad, "variable", lambda i: f"variable name {_cell(df['variable'], i)!r} is not a safe identifier "
-                                        f"({_SAFE_RULE})"),
-        (period_bad, "period", lambda i: f"cannot parse period {_cell(df['period'], i)!r}; "
-                                         "expected e.g. 2001Q3 or 2001-07"),
-        (rel_bad, "release", lambda i: f"cannot parse release date {_cell(df['release'], i)!r}; "
-                                       "expected YYYY-MM-DD"),
+        (control["variable"], "variable", ctl("variable")),
+        (var_bad, "variable", lambda i: f"variable name {_show(_cell(df['variable'], i))} is not a safe "
+                                        f"identifier ({_SAFE_RULE})"),
+        (control["period"], "period", ctl("period")),
+        (period_bad, "period", lambda i: f"cannot parse period {_show(_cell(df['period'], i))}: "
+                                         f"{period_problem(_cell(df['period'], i))}"),
+        (control["release"], "release", ctl("release")),
+        (rel_bad, "release", lambda i: f"cannot parse release date {_show(_cell(df['release'], i))}; "
+                                       f"expected YYYY-MM-DD in ASCII digits, years {YEAR_MIN}-{YEAR_MAX}"),
+        (control["value"], "value", ctl("value")),
         (val_blank, "value", lambda i: "value is blank; leave the row out instead"),
-        (val_nonnum, "value", lambda i: f"value {_cell(df['value'], i)!r} is not a number"),
-        (val_nonfinite, "value", lambda i: f"value {_cell(df['value'], i)!r} is NaN or infinite; "
+        (val_nonnum, "value", lambda i: f"value {_show(_cell(df['value'], i))} is not a number"),
+        (val_nonfinite, "value", lambda i: f"value {_show(_cell(df['value'], i))} is NaN or infinite; "
                                            "leave the cell out instead"),
     ]
     firsts = [(int(np.argmax(m)), k) for k, (m, _, _) in enumerate(checks) if m.any()]
@@ -352,7 +417,7 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
         want, why = _required_freq(name, known, new_meta, expected, src)
         if want is not None and var_freq[k] != want:
             i = int(first_row[k])
-            raise InputError(f"period {_cell(df['period'], i)!r} is {_fname(var_freq[k])} but variable "
+            raise InputError(f"period {_show(_cell(df['period'], i))} is {_fname(var_freq[k])} but variable "
                              f"{name!r} is {_fname(want)} ({why})", **where(i, "period"))
         freqs[name] = str(var_freq[k])
 
@@ -370,6 +435,15 @@ def validate_table(df: pd.DataFrame, *, known: dict[str, dict] | None = None,
                              f"{_cell(df['period'], i)!s} ({ends[i]}); a value cannot be published before "
                              "its period ends (allow it for forecasts-as-data with --allow-early)",
                              **where(i, "release"))
+    if not allow_future:
+        day = pd.Timestamp(today if today is not None else _dt.date.today()).normalize()
+        limit = np.datetime64((day + pd.DateOffset(years=1)).date(), "D")
+        future = rel_days > limit
+        if future.any():
+            i = int(np.argmax(future))
+            raise InputError(f"release date {rel_days[i]} is more than a year after the ingest day "
+                             f"({day.date()}); a release is dated when it is published (allow a published "
+                             "calendar with --allow-future)", **where(i, "release"))
 
     # --- duplicate cells: identical ones collapse, different ones are refused
     # One frequency per variable is settled, so (variable, ordinal, day) identifies a cell.
@@ -412,43 +486,96 @@ def _cell(s: pd.Series, i: int):
     v = s.iloc[i]
     if isinstance(v, np.generic):
         v = v.item()  # show 'inf', not 'np.float64(inf)'
-    return v.strip() if isinstance(v, str) else v
+    return v.strip(_BLANKS) if isinstance(v, str) else v
 
 
-def _check_variables(s: pd.Series) -> tuple[np.ndarray, list[str], np.ndarray]:
+def _show(v) -> str:
+    """A cell for a message: its repr (control characters escaped), cut to 60 characters."""
+    text = repr(v)
+    if len(text) <= _SHOW:
+        return text
+    return f"{text[:_SHOW - 1]}\u2026 ({len(str(v))} characters)"
+
+
+class _Cells:
+    """A text column factorised once: checks run on its distinct cells, results broadcast back.
+
+    Cells stay Python ``str`` objects (a NumPy unicode array would drop trailing NULs); a
+    missing cell reads as ``""``.
+    """
+
+    def __init__(self, s: pd.Series):
+        codes, uniq = pd.factorize(s.to_numpy(dtype=object), use_na_sentinel=True)
+        raw = [x if isinstance(x, str) else str(x) for x in uniq] + [""]  # code -1 (missing) -> ""
+        self.codes = codes
+        self.raw = np.array(raw, dtype=object)
+        self.stripped = np.array([x.strip(_BLANKS) for x in raw], dtype=object)
+
+    def rows(self, per_unique: np.ndarray) -> np.ndarray:
+        """A per-distinct-cell array broadcast to the rows."""
+        return np.asarray(per_unique)[self.codes]
+
+
+def _text_cells(s: pd.Series) -> _Cells | None:
+    return _Cells(s) if _is_text(s) else None
+
+
+def _padded(cells: _Cells | None, s: pd.Series):
+    """A text column with its ASCII blanks stripped (other columns unchanged)."""
+    return s if cells is None else cells.rows(cells.stripped)
+
+
+def _control_chars(cells: _Cells | None, n: int) -> np.ndarray:
+    """Mask of text cells holding a control character (non-text columns have none)."""
+    if cells is None:
+        return np.zeros(n, dtype=bool)
+    return cells.rows(np.array([_CONTROL_RE.search(x) is not None for x in cells.raw], dtype=bool))
+
+
+def _check_variables(s: pd.Series, cells: _Cells | None) -> tuple[np.ndarray, list[str], np.ndarray]:
     """Codes into the sorted distinct names, the names, and a mask of unsafe names."""
-    obj = s.to_numpy(dtype=object)
     na = np.asarray(pd.isna(s))
-    text = np.where(na, "", obj).astype(str)
-    text = np.char.strip(text)
-    names, codes = np.unique(text, return_inverse=True)
+    if cells is None:  # a non-text column holds no names
+        cells = _Cells(s.astype(str))
+        na = np.ones(len(s), dtype=bool)
+    present = np.zeros(len(cells.stripped), dtype=bool)
+    present[cells.codes] = True  # code -1 marks the last slot, the one of missing cells
+    names, inv = np.unique(cells.stripped[present], return_inverse=True)
+    to_name = np.full(len(present), -1, dtype=np.int64)
+    to_name[present] = inv
+    codes = to_name[cells.codes]
     ok = np.array([_safe(str(x)) for x in names], dtype=bool)
     bad = ~ok[codes] | na
-    return codes.astype(np.int64), [str(x) for x in names], bad
+    return codes, [str(x) for x in names], bad
 
 
-def _parse_releases(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+def _parse_releases(s: pd.Series, cells: _Cells | None) -> tuple[np.ndarray, np.ndarray]:
     """Release days (datetime64[D]) and a mask of unparsable cells."""
     if isinstance(s.dtype, pd.DatetimeTZDtype):
         s = s.dt.tz_localize(None)  # keep the wall-clock day the publisher wrote
     if pd.api.types.is_datetime64_any_dtype(s.dtype):
         days = s.to_numpy().astype("datetime64[D]")
-        return days, np.isnat(days)
-    if s.dtype != object and not pd.api.types.is_string_dtype(s.dtype):
+        return days, np.isnat(days) | _outside_years(days)
+    if cells is None:
         return np.full(len(s), np.datetime64("NaT"), "datetime64[D]"), np.ones(len(s), dtype=bool)
     # Dates repeat a great deal: parse each distinct text once.
-    codes, uniq = pd.factorize(np.where(pd.isna(s), "", s.to_numpy(dtype=object)).astype(str))
-    uniq = np.char.strip(np.asarray(uniq, dtype=str))
-    ok = np.array([bool(_DATE_CELL.match(u)) for u in uniq], dtype=bool)
+    uniq = cells.stripped
+    ok = np.array([bool(_DATE_CELL.match(u)) and YEAR_MIN <= int(u[:4]) <= YEAR_MAX for u in uniq], dtype=bool)
     parsed = np.full(len(uniq), np.datetime64("NaT"), dtype="datetime64[D]")
     if ok.any():
-        ts = pd.to_datetime(pd.Series(uniq[ok]), format="ISO8601", errors="coerce")
+        ts = pd.to_datetime(pd.Series(uniq[ok], dtype=object), format="ISO8601", errors="coerce")
         parsed[ok] = ts.to_numpy().astype("datetime64[D]")
-    days = parsed[codes]
-    return days, np.isnat(days)
+    days = cells.rows(parsed)
+    return days, np.isnat(days) | _outside_years(days)
 
 
-def _parse_values(s: pd.Series) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def _outside_years(days: np.ndarray) -> np.ndarray:
+    """Mask of days outside the supported years (NaT is not outside: it is reported as unparsable)."""
+    y = days.astype("datetime64[Y]").astype(np.int64) + 1970
+    return ~np.isnat(days) & ((y < YEAR_MIN) | (y > YEAR_MAX))
+
+
+def _parse_values(s: pd.Series, cells: _Cells | None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Values (float64) and masks: blank, not a number, NaN or infinite."""
     n = len(s)
     no = np.zeros(n, dtype=bool)
@@ -457,13 +584,20 @@ def _parse_values(s: pd.Series) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.
     if pd.api.types.is_numeric_dtype(s.dtype):
         val = s.to_numpy(dtype=np.float64, na_value=np.nan)
         return val, no, no, ~np.isfinite(val)
-    text = pd.Series(np.where(pd.isna(s), "", s.to_numpy(dtype=object)).astype(str)).str.strip()
-    blank = (text == "").to_numpy()
-    val = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-    nan_word = text.str.lower().isin(_NAN_WORDS).to_numpy()
-    nonnum = np.isnan(val) & ~nan_word & ~blank
-    nonfinite = ~np.isfinite(val) & ~nonnum & ~blank
-    return val, blank, nonnum, nonfinite
+    if cells is None:
+        return np.full(n, np.nan), no, np.ones(n, dtype=bool), no
+    text = cells.stripped
+    blank = text == ""
+    # Only ASCII decimal numbers reach to_numeric: it must never guess at other spellings.
+    number = np.array([_NUMBER.match(x) is not None for x in text], dtype=bool)
+    val = np.full(len(text), np.nan)
+    if number.any():
+        val[number] = pd.to_numeric(pd.Series(text[number], dtype=object), errors="coerce").to_numpy(
+            dtype=np.float64, na_value=np.nan)
+    word = np.array([x.lower() in _NONFINITE_WORDS for x in text], dtype=bool)
+    nonnum = ~number & ~word & ~blank
+    nonfinite = (word | (number & ~np.isfinite(val))) & ~blank
+    return cells.rows(val), cells.rows(blank), cells.rows(nonnum), cells.rows(nonfinite)
 
 
 def _required_freq(name: str, known: dict, new_meta: dict, expected: str | None,
@@ -471,7 +605,7 @@ def _required_freq(name: str, known: dict, new_meta: dict, expected: str | None,
     """The frequency a variable must have, and where that requirement comes from."""
     reqs = []
     if (known.get(name) or {}).get("freq"):
-        reqs.append((known[name]["freq"], "as recorded in the store"))
+        reqs.append((known[name]["freq"], known[name].get("_why", "as recorded in the store")))
     if (new_meta.get(name) or {}).get("freq"):
         reqs.append((new_meta[name]["freq"], "as declared for this batch"))
     if expected is not None:

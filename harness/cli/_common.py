@@ -10,6 +10,7 @@ import typer
 
 DATA_ERROR = 1
 USAGE_ERROR = 2
+LOCKED_ERROR = 3  # another writer holds a store's lock: retry later
 
 
 def fail(message: str, code: int = DATA_ERROR) -> None:

@@ -1,14 +1,20 @@
-"""``harness vintages …``: create a store, ingest release files, inspect what was known when."""
+"""``harness vintages …``: create a store, ingest release files, inspect what was known when.
+
+Exit codes of these commands: 0 success; 1 data or input error (a bad file, a conflict, a
+corrupt store, an unsound ``verify``); 2 usage error (bad option or argument); 3 another
+writer holds the store's lock: retry when it has finished.
+"""
 
 from __future__ import annotations
 
+import functools
 from enum import Enum
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from harness.cli._common import echo_table, fail, friendly
+from harness.cli._common import LOCKED_ERROR, USAGE_ERROR, echo_table, fail, friendly
 
 app = typer.Typer(no_args_is_help=True, add_completion=False)
 
@@ -36,6 +42,33 @@ class ExportFormat(str, Enum):
 StoreArg = Annotated[Path, typer.Argument(help="Path of the vintage store directory.")]
 
 
+def _locked_is_3(func):
+    """Turn StoreLockedError into exit code 3 (the caller may simply retry)."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        from vintages import StoreLockedError
+
+        try:
+            return func(*args, **kwargs)
+        except StoreLockedError as exc:
+            fail(str(exc).splitlines()[0], code=LOCKED_ERROR)
+
+    return wrapper
+
+
+def _notes(st, m) -> None:
+    """Notes on stderr: an older store format, files left by interrupted writes."""
+    note = st.format_note(m)
+    if note:
+        typer.echo(f"note: {note}", err=True)
+    orphans = st.orphans()
+    if orphans:
+        shown = ", ".join(orphans[:5]) + (f", … ({len(orphans)} in all)" if len(orphans) > 5 else "")
+        typer.echo(f"note: {len(orphans)} file(s) not listed by the manifest (left by interrupted writes or "
+                   f"put there by hand): {shown}; see 'harness vintages cleanup {st.path}'", err=True)
+
+
 @app.command("init")
 @friendly
 def init_cmd(store: StoreArg) -> None:
@@ -48,6 +81,7 @@ def init_cmd(store: StoreArg) -> None:
 
 @app.command("ingest")
 @friendly
+@_locked_is_3
 def ingest_cmd(
     store: StoreArg,
     files: Annotated[list[Path], typer.Argument(help="Release files (CSV or Parquet).")],
@@ -55,54 +89,136 @@ def ingest_cmd(
                                               "triangle: one variable, rows periods, columns release dates.")] = LayoutOpt.long,
     variable: Annotated[str | None, typer.Option(help="Variable held by a triangle file.")] = None,
     freq: Annotated[FreqOpt | None, typer.Option(help="Frequency of a new variable (checked against the periods).")] = None,
-    units: Annotated[str | None, typer.Option(help="Units of a new variable.")] = None,
-    description: Annotated[str | None, typer.Option(help="Description of a new variable.")] = None,
+    units: Annotated[str | None, typer.Option(help="Units of a new variable (a known variable's units change "
+                                              "only with 'describe').")] = None,
+    description: Annotated[str | None, typer.Option(help="Description of a new variable (change a known one's "
+                                                    "with 'describe').")] = None,
     supersede: Annotated[bool, typer.Option("--supersede", help="Allow replacing values already published for the same "
                                             "(variable, period, release); the old values stay in the log with an audit record.")] = False,
     reason: Annotated[str | None, typer.Option(help="Reason recorded in the audit trail with --supersede.")] = None,
     allow_early: Annotated[bool, typer.Option("--allow-early", help="Accept release dates on or before the end of the "
                                               "reference period (forecasts-as-data, e.g. survey expectations).")] = False,
+    allow_future: Annotated[bool, typer.Option("--allow-future", help="Accept release dates more than a year after "
+                                               "today (e.g. a published release calendar).")] = False,
 ) -> None:
-    """Validate release files and append them to STORE, one atomic batch per file.
+    """Validate release files and append them to STORE, all of them or none.
 
-    Every file is validated completely before anything is written; an invalid file leaves the
-    store untouched and the command stops with a one-line error naming file, line and field.
+    Every file is validated against the store and against the files before it on the command
+    line (frequencies, values of the same cell, metadata), then all are committed in one step,
+    one batch file per file with new values. An invalid file leaves the store byte-identical
+    and the command stops with a one-line error naming file, line and field.
     """
-    from vintages import VintageStore, read_releases, validate_table
+    from vintages import VintageStore, read_releases
 
     if layout is LayoutOpt.triangle and not variable:
-        fail("a triangle holds one variable: name it with --variable NAME", code=2)
+        fail("a triangle holds one variable: name it with --variable NAME", code=USAGE_ERROR)
     st = VintageStore(store)
-    known = st.variables
     given = {k: v for k, v in (("freq", freq.value if freq else None), ("units", units),
                                 ("description", description)) if v is not None}
-    tables = []
-    for f in files:  # validate every file first: either all are appended or none
+    items = []
+    for f in files:  # read every file first; append_many validates them all before writing
         t = read_releases(f, layout=layout.value, variable=variable, freq=given.get("freq"))
         meta = {n: dict(given) for n in set(t["variable"].astype(str))} if given else {}
-        validate_table(t, known=known, new_meta=meta, source=str(f), allow_early=allow_early)
-        tables.append((f, t, meta))
-    for f, t, meta in tables:
-        res = st.append(t, meta, supersede=supersede, source=str(f), reason=reason, allow_early=allow_early)
+        items.append((t, meta, str(f)))
+    results = st.append_many(items, supersede=supersede, reason=reason, allow_early=allow_early,
+                             allow_future=allow_future)
+    for f, res in zip(files, results, strict=True):
+        for w in res.warnings:
+            typer.echo(f"warning: {f}: {w}", err=True)
         typer.echo(f"{f}: {res.summary()}")
 
 
 @app.command("info")
 @friendly
 def info_cmd(store: StoreArg) -> None:
-    """Summarise STORE: variables, frequencies, periods and releases held, checksum."""
+    """Summarise STORE: variables, frequencies, periods and releases held, checksum.
+
+    Reading verifies the manifest and every batch file's checksum (a mismatch stops with exit
+    1); files the manifest does not list are shown as notes.
+    """
     from vintages import VintageStore
 
     st = VintageStore(store)
     m = st.manifest()
-    problems = st.verify()
+    table = st.info()
     typer.echo(f"store {store}: {len(m['variables'])} variables, {len(m['batches'])} batches, "
                f"{len(m['audit'])} superseded values; checksum {st.checksum()[:16]}")
-    echo_table(st.info().drop(columns=["description"], errors="ignore"))
+    echo_table(table.drop(columns=["description"], errors="ignore"))
+    _notes(st, m)
+
+
+@app.command("verify")
+@friendly
+def verify_cmd(store: StoreArg) -> None:
+    """Check STORE completely: manifest checksum and batch chain, every file's checksum and rows.
+
+    Exit 0 when the store is sound, 1 when not (each problem on its own line). Files the
+    manifest does not list are shown as notes; they do not make the store unsound.
+    """
+    from vintages import VintageStore
+
+    st = VintageStore(store)
+    problems = st.verify()
     if problems:
         for p in problems:
             typer.echo(f"problem: {p}", err=True)
-        raise typer.Exit(code=1)
+        fail(f"{store}: {len(problems)} problem(s) found; the store is not sound")
+    m = st.manifest()
+    rows = sum(int(b["rows"]) for b in m["batches"])
+    typer.echo(f"store {store} is sound: {len(m['batches'])} batch files ({rows} rows) match their checksums; "
+               f"manifest checksum and batch chain {'verified' if st.format_note(m) is None else 'absent'}")
+    _notes(st, m)
+
+
+@app.command("cleanup")
+@friendly
+@_locked_is_3
+def cleanup_cmd(
+    store: StoreArg,
+    apply: Annotated[bool, typer.Option("--apply", help="Remove the files (without it: a dry run that only lists them).")] = False,
+) -> None:
+    """List, and with --apply remove, files interrupted writes left in STORE.
+
+    A dry run by default. Only temporary files and batch files the manifest does not list are
+    removed; a listed file never is, and other files are reported and left alone. Takes the
+    writer's lock (exit 3 while another writer works).
+    """
+    from vintages import VintageStore
+
+    res = VintageStore(store).cleanup(apply=apply)
+    for rel in res.removable:
+        typer.echo(f"{'removed' if rel in res.removed else 'would remove'} {rel}")
+    for rel in res.kept:
+        typer.echo(f"left alone (not written by the store) {rel}", err=True)
+    typer.echo(res.summary())
+
+
+@app.command("describe")
+@friendly
+@_locked_is_3
+def describe_cmd(
+    store: StoreArg,
+    variable: Annotated[str, typer.Argument(help="Variable whose metadata change.")],
+    units: Annotated[str | None, typer.Option(help="New units.")] = None,
+    description: Annotated[str | None, typer.Option(help="New description.")] = None,
+    transform_hint: Annotated[str | None, typer.Option("--transform-hint", help="Transformation that makes the "
+                                                       "series stationary (default of 'revisions'); '' removes it.")] = None,
+    reason: Annotated[str | None, typer.Option(help="Why, kept in the audit record.")] = None,
+) -> None:
+    """Change VARIABLE's units, description or transform hint; the manifest keeps the old and new value."""
+    from vintages import VintageStore, transform_names
+
+    if units is None and description is None and transform_hint is None:
+        fail("nothing to change: give --units, --description or --transform-hint", code=USAGE_ERROR)
+    if transform_hint and transform_hint not in transform_names():
+        fail(f"unknown --transform-hint {transform_hint!r}; expected one of {transform_names()} "
+             "(or '' to remove it)", code=USAGE_ERROR)
+    records = VintageStore(store).describe(variable, units=units, description=description,
+                                           transform_hint=transform_hint, reason=reason)
+    if not records:
+        typer.echo(f"{variable}: nothing changed (the values given are already recorded)")
+    for r in records:
+        typer.echo(f"{variable}: {r['field']} {r['old']!r} -> {r['new']!r}")
 
 
 @app.command("asof")
@@ -122,7 +238,7 @@ def asof_cmd(
     try:
         day = pd.Timestamp(date)
     except ValueError:
-        fail(f"cannot parse date {date!r}; expected YYYY-MM-DD", code=2)
+        fail(f"cannot parse date {date!r}; expected YYYY-MM-DD", code=USAGE_ERROR)
     cube = VintageStore(store).cube(variables=variable or None)
     df = cube.asof(day).to_frame()
     cols = ["variable", "period", "value"] + (["release"] if release else [])
@@ -139,22 +255,15 @@ def asof_cmd(
 @friendly
 def export_cmd(
     store: StoreArg,
-    out: Annotated[Path, typer.Argument(help="Output file.")],
+    out: Annotated[Path, typer.Argument(help="Output file (written atomically: never left half-written).")],
     fmt: Annotated[ExportFormat, typer.Option("--format", help="csv or parquet long table.")] = ExportFormat.csv,
     superseded: Annotated[bool, typer.Option("--with-superseded", help="Include superseded values (audit).")] = False,
 ) -> None:
     """Export the whole release log as a long table (variable, period, release, value, batch)."""
     from vintages import VintageStore
 
-    log = VintageStore(store).read_log(with_superseded=superseded)
-    log["release"] = log["release"].dt.strftime("%Y-%m-%d")
-    tmp = out.with_name(out.name + ".tmp")
-    if fmt is ExportFormat.csv:
-        log.to_csv(tmp, index=False)
-    else:
-        log.to_parquet(tmp, index=False)
-    tmp.replace(out)
-    typer.echo(f"wrote {len(log)} rows to {out}")
+    n = VintageStore(store).export(out, fmt=fmt.value, with_superseded=superseded)
+    typer.echo(f"wrote {n} rows to {out}")
 
 
 @app.command("revisions")
@@ -165,13 +274,17 @@ def revisions_cmd(
     frm: Annotated[str, typer.Option("--from", help="Earlier estimate: first, release:K, lag:NNND.")] = "first",
     to: Annotated[str, typer.Option("--to", help="Later estimate: latest, release:K, lag:NNND, asof:DATE.")] = "latest",
     transform: Annotated[str | None, typer.Option(help="Transformation inside each vintage (level, diff, dlog, "
-                                                  "dlog_ann, yoy); default: dlog_ann for an index, level for a rate.")] = None,
+                                                  "dlog_ann, yoy); default: the variable's transform hint "
+                                                  "(see 'describe'), else dlog_ann for an index, level for a rate.")] = None,
     fmt: Annotated[TableFormat, typer.Option("--format", help="table or csv.")] = TableFormat.table,
 ) -> None:
     """Revision statistics and news-versus-noise regressions for VARIABLE between two estimates."""
     from vintages import VintageStore, revisions_table
 
-    table = revisions_table(VintageStore(store).cube(), variable, transform=transform, frm=frm, to=to)
+    st = VintageStore(store)
+    if transform is None:
+        transform = (st.variables.get(variable) or {}).get("transform_hint") or None
+    table = revisions_table(st.cube(), variable, transform=transform, frm=frm, to=to)
     if fmt is TableFormat.csv:
         echo_table(table, "csv")
         return

@@ -4,11 +4,16 @@ Usage::
 
     python crash_helper.py append STORE BATCH.parquet POINT   # POINT: before-batch | before-manifest
                                                                #        | after-manifest | none
+    python crash_helper.py append_many STORE POINT B1.parquet B2.parquet ...
+                                                               # POINT also: between-batches
+    python crash_helper.py describe STORE POINT                # POINT: before-manifest | after-manifest
     python crash_helper.py hold STORE                          # take the writer's lock until stdin closes
 
-``append`` prints ``ready`` just before calling :meth:`VintageStore.append` (so a parent can time a
-kill inside the append) and ``done`` after it; at ``POINT`` the process sends SIGKILL to itself,
-which no handler can intercept: the closest a test gets to pulling the plug.
+``append`` and ``append_many`` print ``ready`` just before calling :meth:`VintageStore.append` /
+:meth:`VintageStore.append_many` (so a parent can time a kill inside the call) and ``done`` after
+it; at the first time the store reaches ``POINT`` the process sends SIGKILL to itself, which no
+handler can intercept: the closest a test gets to pulling the plug. ``describe`` sets the units
+of variable ``a00`` to ``"killed-units"``.
 """
 
 from __future__ import annotations
@@ -37,6 +42,29 @@ def _append(store: str, batch: str, point: str) -> None:
     print("done", flush=True)
 
 
+def _kill_at(point: str):
+    def hook(where: str) -> None:
+        if where == point:
+            os.kill(os.getpid(), signal.SIGKILL)
+
+    return hook
+
+
+def _append_many(store: str, point: str, batches: list[str]) -> None:
+    st = VintageStore(store)
+    items = [(pd.read_parquet(b), None, f"crash-test-{k}") for k, b in enumerate(batches, start=1)]
+    print("ready", flush=True)
+    st.append_many(items, _crash_hook=_kill_at(point))
+    print("done", flush=True)
+
+
+def _describe(store: str, point: str) -> None:
+    st = VintageStore(store)
+    print("ready", flush=True)
+    st.describe("a00", units="killed-units", reason="crash test", _crash_hook=_kill_at(point))
+    print("done", flush=True)
+
+
 def _hold(store: str) -> None:
     st = VintageStore(store)
     with st._lock():
@@ -47,7 +75,12 @@ def _hold(store: str) -> None:
 if __name__ == "__main__":
     if sys.argv[1] == "append":
         _append(*sys.argv[2:5])
+    elif sys.argv[1] == "append_many":
+        _append_many(sys.argv[2], sys.argv[3], sys.argv[4:])
+    elif sys.argv[1] == "describe":
+        _describe(sys.argv[2], sys.argv[3])
     elif sys.argv[1] == "hold":
         _hold(sys.argv[2])
     else:
-        raise SystemExit(f"unknown mode {sys.argv[1]!r}; expected one of ['append', 'hold']")
+        raise SystemExit(f"unknown mode {sys.argv[1]!r}; expected one of ['append', 'append_many', 'describe', "
+                         "'hold']")

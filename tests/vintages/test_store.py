@@ -104,7 +104,7 @@ def test_unreadable_manifest_is_corruption(store):
     with pytest.raises(StoreCorruptError, match="unreadable manifest"):
         store.read_log()
     (store.path / "manifest.json").write_text(json.dumps({"format": "other/9"}))
-    with pytest.raises(StoreCorruptError, match="expected 'vintage-store/1'"):
+    with pytest.raises(StoreCorruptError, match="expected 'vintage-store/2'"):
         store.manifest()
 
 
@@ -242,17 +242,31 @@ def test_verify_finds_tampering_and_ignores_orphans(store):
     data = bytearray(f.read_bytes())
     data[len(data) // 2] ^= 0xFF
     f.write_bytes(bytes(data))
-    assert store.verify() == [f"{f.relative_to(store.path)}: checksum mismatch"]
+    rel = str(f.relative_to(store.path))
+    assert store.verify() == [f"{rel}: checksum mismatch (the file changed after it was committed)"]
+    with pytest.raises(StoreCorruptError, match=f"{rel}: checksum mismatch"):
+        store.read_log()
     f.unlink()
-    assert store.verify() == [f"{f.relative_to(store.path)}: listed in the manifest but missing"]
+    assert store.verify() == [f"{rel}: listed in the manifest but missing"]
 
 
-def test_verify_refuses_path_tricks_in_manifest(store):
-    """A manifest entry that points outside log/ is reported, not followed."""
+@pytest.mark.parametrize("trick", ["../../etc/passwd", "log/../../../etc/passwd", "/etc/passwd",
+                                   "log/000001-0123456789ab.parquet/../../x"])
+def test_path_tricks_in_manifest_are_refused_on_every_read(store, trick):
+    """A manifest entry pointing outside log/ is reported by verify and refused by every read.
+
+    The manifest is re-sealed (checksum and chain recomputed, as a tool might) so that only
+    the path check stands between the entry and the read.
+    """
+    from vintages.store import _dump, _seal
+
     m = store.manifest()
-    m["batches"][0]["file"] = "../../etc/passwd"
-    (store.path / "manifest.json").write_text(json.dumps(m))
-    assert store.verify() == ["'../../etc/passwd': not a file name under log/"]
+    m["batches"][0]["file"] = trick
+    (store.path / "manifest.json").write_bytes(_dump(_seal(m, "2020-01-01T00:00:00+00:00")))
+    assert any(p.startswith(f"{trick!r}: not a batch file name under log/") for p in store.verify())
+    for read in (store.read_log, store.cube, store.info, store.checksum):
+        with pytest.raises(StoreCorruptError, match="not a batch file name under log/"):
+            read()
 
 
 def test_checksum_follows_committed_state(store):
@@ -320,7 +334,7 @@ def test_crash_hook_points_in_order(store):
 
 
 def _first_batch(n_vars: int) -> pd.DataFrame:
-    return releases(120, 10, seed=10, variables=[f"a{k:02d}" for k in range(n_vars)])
+    return releases(120, 10, seed=10, first_year=1985, variables=[f"a{k:02d}" for k in range(n_vars)])
 
 
 def _prepare_crash(tmp_path: Path, n_vars: int):
@@ -328,8 +342,9 @@ def _prepare_crash(tmp_path: Path, n_vars: int):
     st = VintageStore.init(tmp_path / "store")
     st.append(_first_batch(n_vars), source="first")
     # new variables, plus new releases (other days) of the variables already there
-    batch = pd.concat([releases(120, 10, seed=11, variables=[f"b{k:02d}" for k in range(n_vars)]),
-                       releases(120, 1, seed=12, lag_days=20, variables=[f"a{k:02d}" for k in range(n_vars)])],
+    batch = pd.concat([releases(120, 10, seed=11, first_year=1985, variables=[f"b{k:02d}" for k in range(n_vars)]),
+                       releases(120, 1, seed=12, first_year=1985, lag_days=20,
+                                variables=[f"a{k:02d}" for k in range(n_vars)])],
                       ignore_index=True)
     path = tmp_path / "batch.parquet"
     batch.to_parquet(path)
