@@ -45,6 +45,7 @@ _PUBLIC: dict[str, str] = {
     "clear_verified_cache": "vintages.store",
     "read_releases": "vintages.ingest",
     "validate_table": "vintages.ingest",
+    "read_sdmx_csv": "vintages.sdmx",
     # periods
     "parse_periods": "vintages.periods",
     "format_periods": "vintages.periods",

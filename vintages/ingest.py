@@ -66,19 +66,27 @@ _PARQUET_SUFFIXES = (".parquet", ".pq")
 
 
 def read_releases(path: str | Path, layout: str = "long", variable: str | None = None,
-                  freq: str | None = None) -> pd.DataFrame:
+                  freq: str | None = None, *, sdmx_map=None, release=None, release_column=None,
+                  skip_unmapped: bool = False) -> pd.DataFrame:
     """Read one release file into a long table with a ``_line`` column (where each value was read).
 
     Parameters
     ----------
     path : path-like
         A CSV (``long`` or ``triangle``) or Parquet (``long``; suffix ``.parquet`` or ``.pq``) file.
-    layout : {"long", "triangle"}
-        The file's layout (see the module docstring).
+    layout : {"long", "triangle", "sdmx-csv"}
+        The file's layout (see the module docstring); ``sdmx-csv`` reads SDMX-CSV 1.0/2.0
+        files (:func:`vintages.sdmx.read_sdmx_csv`).
     variable : str, optional
         The variable a triangle holds (required for ``triangle``, ignored for ``long``).
     freq : {"M", "Q"}, optional
         Expected frequency of every variable in the file; checked by :func:`validate_table`.
+    sdmx_map : mapping or path, optional
+        ``sdmx-csv`` only: which dimension values make which variable (a dict or a TOML file).
+    release, release_column : optional
+        ``sdmx-csv`` only: the release date of the file's values, or the column holding it.
+    skip_unmapped : bool
+        ``sdmx-csv`` only: ignore rows that match no entry of the map (default: refuse them).
 
     Returns
     -------
@@ -100,6 +108,14 @@ def read_releases(path: str | Path, layout: str = "long", variable: str | None =
         raise InputError(f"unknown layout {layout!r}; expected one of {sorted(LAYOUTS)}", file=src)
     if freq is not None and freq not in FREQS:
         raise InputError(f"unknown frequency {freq!r}; expected one of {sorted(FREQS)}", file=src)
+    if layout == "sdmx-csv":
+        from vintages.sdmx import read_sdmx_csv
+
+        if sdmx_map is None:
+            raise InputError("an SDMX-CSV file needs a map of dimension values to variables "
+                             "(--map FILE)", file=src)
+        return read_sdmx_csv(path, variables=sdmx_map, release=release, release_column=release_column,
+                             freq=freq, skip_unmapped=skip_unmapped)
     if layout == "triangle":
         if variable is None:
             raise InputError("a triangle holds one variable: name it (--variable NAME)", file=src)

@@ -22,6 +22,7 @@ app = typer.Typer(no_args_is_help=True, add_completion=False)
 class LayoutOpt(str, Enum):
     long = "long"
     triangle = "triangle"
+    sdmx_csv = "sdmx-csv"
 
 
 class FreqOpt(str, Enum):
@@ -86,7 +87,17 @@ def ingest_cmd(
     store: StoreArg,
     files: Annotated[list[Path], typer.Argument(help="Release files (CSV or Parquet).")],
     layout: Annotated[LayoutOpt, typer.Option(help="long: variable,period,release,value rows; "
-                                              "triangle: one variable, rows periods, columns release dates.")] = LayoutOpt.long,
+                                              "triangle: one variable, rows periods, columns release dates; "
+                                              "sdmx-csv: SDMX-CSV 1.0 or 2.0 (needs --map and --release "
+                                              "or --release-column).")] = LayoutOpt.long,
+    sdmx_map: Annotated[Path | None, typer.Option("--map", help="sdmx-csv: TOML file mapping dimension values "
+                                                  "to variable names, e.g. gdp = \"REF_AREA=VM, INDICATOR=GDP\".")] = None,
+    release: Annotated[str | None, typer.Option(help="sdmx-csv: the release date (YYYY-MM-DD) of every value "
+                                                "in the file.")] = None,
+    release_column: Annotated[str | None, typer.Option(help="sdmx-csv: the column holding each value's "
+                                                       "release date.")] = None,
+    skip_unmapped: Annotated[bool, typer.Option("--skip-unmapped", help="sdmx-csv: ignore rows the map does "
+                                                "not name (default: refuse them).")] = False,
     variable: Annotated[str | None, typer.Option(help="Variable held by a triangle file.")] = None,
     freq: Annotated[FreqOpt | None, typer.Option(help="Frequency of a new variable (checked against the periods).")] = None,
     units: Annotated[str | None, typer.Option(help="Units of a new variable (a known variable's units change "
@@ -112,12 +123,17 @@ def ingest_cmd(
 
     if layout is LayoutOpt.triangle and not variable:
         fail("a triangle holds one variable: name it with --variable NAME", code=USAGE_ERROR)
+    if layout is LayoutOpt.sdmx_csv and (sdmx_map is None or (release is None) == (release_column is None)):
+        fail("an SDMX-CSV file needs --map FILE and exactly one of --release DATE or --release-column COL",
+             code=USAGE_ERROR)
     st = VintageStore(store)
     given = {k: v for k, v in (("freq", freq.value if freq else None), ("units", units),
                                 ("description", description)) if v is not None}
     items = []
     for f in files:  # read every file first; append_many validates them all before writing
-        t = read_releases(f, layout=layout.value, variable=variable, freq=given.get("freq"))
+        t = read_releases(f, layout=layout.value, variable=variable, freq=given.get("freq"),
+                          sdmx_map=sdmx_map, release=release, release_column=release_column,
+                          skip_unmapped=skip_unmapped)
         meta = {n: dict(given) for n in set(t["variable"].astype(str))} if given else {}
         items.append((t, meta, str(f)))
     results = st.append_many(items, supersede=supersede, reason=reason, allow_early=allow_early,

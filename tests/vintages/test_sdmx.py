@@ -639,3 +639,69 @@ def test_refuses_bad_variable_map_dict(tmp_path):
         read_sdmx_csv(p, variables={"gdp": "INDICATOR=GDP R"}, release="2024-11-15")
     with pytest.raises(InputError, match="the variable map is empty"):
         read_sdmx_csv(p, variables={}, release="2024-11-15")
+
+
+# --------------------------------------------------------------------------- the command line
+def _cli_store(tmp_path):
+    from harness.cli import app
+    from typer.testing import CliRunner
+
+    store = tmp_path / "store"
+    VintageStore.init(store)
+    mp = write(tmp_path, "map.toml", '[variables]\ngdp = "REF_AREA=VM, INDICATOR=GDP_R"\n'
+                                     'cpi = "REF_AREA=VM, INDICATOR=CPI"\n')
+    return CliRunner(), app, store, mp
+
+
+def _digest(root: Path) -> dict:
+    import hashlib
+
+    return {str(p.relative_to(root)): hashlib.sha256(p.read_bytes()).hexdigest()
+            for p in sorted(root.rglob("*")) if p.is_file()}
+
+
+def test_cli_ingests_sdmx_csv_one_file_per_vintage(tmp_path):
+    """``ingest --layout sdmx-csv --map --release`` appends a vintage per file (SDMX-CSV 1.0, Examples 1)."""
+    runner, app, store, mp = _cli_store(tmp_path)
+    f1 = write(tmp_path, "v1.csv", V1)
+    f2 = write(tmp_path, "v2.csv", V1.replace("102.25", "102.5"))
+    for f, day in ((f1, "2024-11-15"), (f2, "2024-12-15")):
+        res = runner.invoke(app, ["vintages", "ingest", str(store), str(f), "--layout", "sdmx-csv",
+                                  "--map", str(mp), "--release", day])
+        assert res.exit_code == 0, res.output
+    cube = VintageStore(store).cube()
+    assert cube.asof("2024-11-30")["gdp"].loc["2024Q3"] == 102.25
+    assert cube.asof("2024-12-31")["gdp"].loc["2024Q3"] == 102.5
+
+
+@pytest.mark.parametrize("body,needle", [
+    (V1.replace("TIME_PERIOD", "PERIOD"), "TIME_PERIOD"),
+    (V1.replace("VM,GDP_R,Q,2024-Q2", "VM,GDP_R,Q,2024-07"), "is monthly but the series is quarterly"),
+    (V1 + "VMSO:NA_MAIN(1.0),VM,CPI,M,2024-08,2.4,A,PC,VM.CPI.M\n", "duplicate"),
+    (V1.replace("VM,CPI,M,2024-08", "VM,CPIX,M,2024-08"), "CPIX"),
+])
+def test_cli_refuses_bad_sdmx_with_one_line_and_leaves_the_store(tmp_path, body, needle):
+    """Missing TIME_PERIOD, wrong frequency, duplicate keys, unknown dimension values: exit 1, store unchanged.
+
+    Cases follow SDMX-CSV 1.0 "Design principles" (one observation per row, TIME_PERIOD and
+    OBS_VALUE columns) and SDMX 2.1 TN 4.2 (time formats per frequency).
+    """
+    runner, app, store, mp = _cli_store(tmp_path)
+    before = _digest(store)
+    f = write(tmp_path, "bad.csv", body)
+    res = runner.invoke(app, ["vintages", "ingest", str(store), str(f), "--layout", "sdmx-csv",
+                              "--map", str(mp), "--release", "2024-11-15"])
+    assert res.exit_code == 1, res.output
+    errs = [ln for ln in res.output.splitlines() if ln.startswith("error:")]
+    assert len(errs) == 1 and needle in errs[0] and str(f) in errs[0]
+    assert _digest(store) == before
+
+
+def test_cli_sdmx_needs_a_map_and_one_release_source(tmp_path):
+    """Without --map, or with both --release and --release-column, the command is a usage error (exit 2)."""
+    runner, app, store, mp = _cli_store(tmp_path)
+    f = write(tmp_path, "v1.csv", V1)
+    assert runner.invoke(app, ["vintages", "ingest", str(store), str(f), "--layout", "sdmx-csv",
+                               "--release", "2024-11-15"]).exit_code == 2
+    assert runner.invoke(app, ["vintages", "ingest", str(store), str(f), "--layout", "sdmx-csv", "--map",
+                               str(mp), "--release", "2024-11-15", "--release-column", "X"]).exit_code == 2
