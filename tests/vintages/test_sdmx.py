@@ -643,8 +643,9 @@ def test_refuses_bad_variable_map_dict(tmp_path):
 
 # --------------------------------------------------------------------------- the command line
 def _cli_store(tmp_path):
-    from harness.cli import app
     from typer.testing import CliRunner
+
+    from harness.cli import app
 
     store = tmp_path / "store"
     VintageStore.init(store)
