@@ -25,16 +25,9 @@ from scipy import stats
 
 from harness.models.base import ar1_scales, lag_design
 from harness.models.bvar import BayesianVAR
-from harness.models.bvar_sv import (
-    KSC_MEANS,
-    KSC_OFFSET,
-    KSC_PROBS,
-    KSC_VARIANCES,
-    _minnesota_independent,
-    draw_coefficients,
-    draw_impacts,
-    sv_gibbs,
-)
+from harness.models.sv_blocks import draw_coefficients, draw_impacts
+from harness.models.sv_sampler import _minnesota_independent, sv_gibbs
+from harness.models.sv_tables import KSC_MEANS, KSC_OFFSET, KSC_PROBS, KSC_VARIANCES
 from harness.testing import make_infoset, make_targets, simulated_panel
 
 TARGETS = {"bvar_3v": 0.1, "bvar_20v": 0.5, "bvar_sv_3v": 15.0, "bvar_sv_kernel_speedup": 2.0}

@@ -14,6 +14,7 @@ import sys
 import time
 import zlib
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
@@ -78,12 +79,37 @@ class Plan:
         return "\n".join(lines)
 
 
+_CODE_HASHES: dict[str, str] = {}
+
+
 def _model_code_hash(cls) -> str:
-    try:
-        src = inspect.getsource(sys.modules[cls.__module__])
-    except (OSError, TypeError, KeyError):
-        src = cls.__qualname__
-    return hashlib.sha256(src.encode()).hexdigest()[:16]
+    """Digest of the code a model's results depend on.
+
+    For a built-in model, every module of :mod:`harness.models` (a model reaches its samplers,
+    kernels and helpers there); for a user's model, its own module.
+    """
+    name = cls.__module__
+    if name in _CODE_HASHES:
+        return _CODE_HASHES[name]
+    h = hashlib.sha256()
+    mod = sys.modules.get(name)
+    files = []
+    if name.startswith("harness.models"):
+        files = sorted(Path(sys.modules["harness.models"].__file__).parent.glob("*.py"))
+    elif mod is not None and getattr(mod, "__file__", None):
+        files = [Path(mod.__file__)]
+    for f in files:
+        try:
+            h.update(f.name.encode() + b"\0" + f.read_bytes())
+        except OSError:
+            h.update(f.name.encode())
+    if not files:
+        try:
+            h.update(inspect.getsource(mod).encode())
+        except (OSError, TypeError):
+            h.update(cls.__qualname__.encode())
+    _CODE_HASHES[name] = h.hexdigest()[:16]
+    return _CODE_HASHES[name]
 
 
 def seed_key(model: str, origin: np.datetime64) -> tuple[int, int]:

@@ -6,31 +6,21 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from harness.models import bvar_sv
+from harness.models import sv_kernels
 from harness.models.base import InsufficientDataError, ar1_scales
-from harness.models.bvar_sv import (
-    KSC_MEANS,
-    KSC_OFFSET,
-    KSC_PROBS,
-    KSC_VARIANCES,
-    BayesianVARSV,
-    _fast_kernels,
-    _indicators_reference,
-    _minnesota_independent,
-    _tridiag_draw_reference,
-    draw_coefficients,
-    draw_impacts,
-    effective_sample_size,
-    sample_log_volatility,
-    sv_gibbs,
-)
+from harness.models.bvar_sv import BayesianVARSV
+from harness.models.mcmc import effective_sample_size
+from harness.models.sv_blocks import draw_coefficients, draw_impacts, sample_log_volatility
+from harness.models.sv_kernels import _fast_kernels, _indicators_reference, _tridiag_draw_reference
+from harness.models.sv_sampler import _minnesota_independent, sv_gibbs
+from harness.models.sv_tables import KSC_MEANS, KSC_OFFSET, KSC_PROBS, KSC_VARIANCES
 from harness.testing import make_infoset, make_targets, simulated_panel
 
 
 def _compiled(name):
-    """The numba-compiled kernel ``name`` of harness.models.bvar_sv (compiled on first use)."""
+    """The numba-compiled kernel ``name`` of harness.models.sv_kernels (compiled on first use)."""
     _fast_kernels()
-    return getattr(bvar_sv, name)
+    return getattr(sv_kernels, name)
 
 
 def _packed_products(x):
