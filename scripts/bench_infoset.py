@@ -27,7 +27,7 @@ if str(ROOT) not in sys.path:
 
 from vintages.calendar import quarterly  # noqa: E402
 from vintages.cube import Cube  # noqa: E402
-from vintages.infoset import build_infosets  # noqa: E402
+from vintages.infosets import build_infosets  # noqa: E402
 from vintages.periods import format_periods, period_end  # noqa: E402
 
 SEED = 20261201
@@ -168,8 +168,8 @@ def run() -> dict[str, float]:
     cube = Cube.from_log(log, meta)
     out["infoset_cube_build_seconds"] = time.perf_counter() - t1
     out["infoset_data_seconds"] = t1 - t0
-    out["infoset_releases_q_part"] = float(len(cube.parts["Q"].releases))
-    out["infoset_releases_m_part"] = float(len(cube.parts["M"].releases))
+    out["infoset_releases_q_part"] = float(len(cube.indexes["Q"].releases))
+    out["infoset_releases_m_part"] = float(len(cube.indexes["M"].releases))
     origins = quarterly(day=15, month_of_quarter=2, start="2001-01-01", end="2025-12-31")
     out["infoset_origins"] = float(len(origins))
     out["infoset_variables"] = float(len(specs))

@@ -81,8 +81,8 @@ def bench_asof(tmp: Path) -> dict[str, float]:
     t0 = time.perf_counter()
     cube = st.cube()
     build = time.perf_counter() - t0
-    fc = cube.parts["M"]
-    assert fc.raw.shape == (400, 20, 200), fc.raw.shape
+    fc = cube.indexes["M"]
+    assert (len(fc.releases), len(fc.variables), len(fc.periods)) == (400, 20, 200)
     rng = np.random.default_rng(2)
     origins = np.sort(rng.choice(fc.releases[0] + np.arange(int((fc.releases[-1] - fc.releases[0]).astype(int))),
                                  size=100, replace=False)).astype("datetime64[D]")

@@ -15,10 +15,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-import vintages.infoset as infoset_mod
+import vintages.rows as rows_mod
+from vintages.contract import POLICIES
 from vintages.cube import Cube
-from vintages.infoset import POLICIES, build_infoset, build_infosets, truth_values
+from vintages.infosets import build_infoset, build_infosets
 from vintages.periods import format_periods, period_of_date
+from vintages.truths import truth_values
 
 D0 = np.datetime64("2000-01-01", "D")
 TRANSFORMS = ("level", "diff", "dlog", "dlog_ann", "yoy")
@@ -161,12 +163,12 @@ def test_the_law_detects_a_leak(monkeypatch):
     honest_ref = build_infoset(small, small.last_release, {"q0": "level"})
     _assert_same(honest_full, honest_ref)
 
-    real_source = infoset_mod._source
+    real_source = rows_mod._source
 
     def leaky(fc, rows, dates, mode):
         return real_source(fc, rows, dates + np.timedelta64(60, "D"), mode)
 
-    monkeypatch.setattr(infoset_mod, "_source", leaky)
+    monkeypatch.setattr(rows_mod, "_source", leaky)
     leaked = build_infoset(Cube.from_log(log, meta), origin, {"q0": "level"})
     with pytest.raises(AssertionError):
         _assert_same(leaked, honest_ref)

@@ -12,9 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from vintages.cube import Cube
-from vintages.errors import LookAheadError
-from vintages.infoset import (
+from vintages import (
     TRANSFORMS,
     InfoSet,
     SeriesSpec,
@@ -25,6 +23,8 @@ from vintages.infoset import (
     truth_table,
     truth_values,
 )
+from vintages.cube import Cube
+from vintages.errors import LookAheadError
 from vintages.transforms import (
     apply_transform,
     months_to_quarters,
