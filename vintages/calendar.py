@@ -299,20 +299,20 @@ def release_calendar(cube: Cube, variables: Iterable[str] | None = None) -> pd.D
     for name in names:
         fc, i = cube.part(name)
         rows, cols = fc.value_rows([i])  # one variable: its local cells are period columns
+        if not len(rows):  # never released: no row in the calendar
+            continue
         order = np.argsort(fc.day[rows], kind="stable")
         day, per = fc.day[rows][order], fc.periods[cols[order]]
         # one group of rows per release day: the cells it published and their period range
-        first = np.flatnonzero(np.r_[True, day[1:] != day[:-1]]) if len(day) else cols[:0]
-        lo = np.minimum.reduceat(per, first) if len(day) else per
-        hi = np.maximum.reduceat(per, first) if len(day) else per
+        first = np.flatnonzero(np.r_[True, day[1:] != day[:-1]])
         frames.append(
             pd.DataFrame(
                 {
                     "variable": name,
                     "release": day[first].astype("datetime64[ns]"),
                     "n_values": np.diff(np.r_[first, len(day)]),
-                    "first_period": format_periods(lo, fc.freq),
-                    "last_period": format_periods(hi, fc.freq),
+                    "first_period": format_periods(np.minimum.reduceat(per, first), fc.freq),
+                    "last_period": format_periods(np.maximum.reduceat(per, first), fc.freq),
                 }
             )
         )
