@@ -24,7 +24,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from vintages import Cube, release_calendar
+from vintages import Cube, VintageStore, release_calendar
 from vintages.errors import StoreCorruptError
 from vintages.periods import format_periods, parse_periods, period_end
 
@@ -225,6 +225,27 @@ def test_pickle_and_npz_round_trips_give_the_same_index(store, data):
                 np.testing.assert_array_equal(getattr(oc, name), getattr(fc, name))
         for d in _dates(data, log, n=2):
             pd.testing.assert_frame_equal(other.asof(d).to_frame(), cube.asof(d).to_frame())
+
+
+@settings(max_examples=30, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(store=release_logs(), data=st.data())
+def test_store_round_trip_keeps_the_index(store, data):
+    """A store written with (often pre-1970) releases reads back into the index built from the log."""
+    log, meta = store
+    with tempfile.TemporaryDirectory() as tmp:
+        vs = VintageStore.init(Path(tmp) / "s")
+        if len(log):
+            vs.append(log, meta)
+        if not vs.variables:
+            return
+        read = vs.cube()
+    direct = Cube.from_log(log, {k: meta[k] for k in read.meta})
+    for f, fc in direct.indexes.items():
+        for name in ("variables", "periods", "cell", "day", "value"):
+            np.testing.assert_array_equal(getattr(read.indexes[f], name), getattr(fc, name))
+    for d in _dates(data, log, n=3):
+        pd.testing.assert_frame_equal(read.asof(d).to_frame(), direct.asof(d).to_frame())
 
 
 def test_load_refuses_a_file_that_is_not_an_index(tmp_path):
