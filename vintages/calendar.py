@@ -298,18 +298,21 @@ def release_calendar(cube: Cube, variables: Iterable[str] | None = None) -> pd.D
     frames = []
     for name in names:
         fc, i = cube.part(name)
-        obs = ~np.isnan(fc.raw[:, i, :])
-        has = obs.any(axis=1)
-        lo = obs.argmax(axis=1)
-        hi = obs.shape[1] - 1 - obs[:, ::-1].argmax(axis=1)
+        rows, cols = fc.value_rows([i])  # one variable: its local cells are period columns
+        if not len(rows):  # never released: no row in the calendar
+            continue
+        order = np.argsort(fc.day[rows], kind="stable")
+        day, per = fc.day[rows][order], fc.periods[cols[order]]
+        # one group of rows per release day: the cells it published and their period range
+        first = np.flatnonzero(np.r_[True, day[1:] != day[:-1]])
         frames.append(
             pd.DataFrame(
                 {
                     "variable": name,
-                    "release": fc.releases[has].astype("datetime64[ns]"),
-                    "n_values": obs.sum(axis=1)[has],
-                    "first_period": format_periods(fc.periods[lo[has]], fc.freq),
-                    "last_period": format_periods(fc.periods[hi[has]], fc.freq),
+                    "release": day[first].astype("datetime64[ns]"),
+                    "n_values": np.diff(np.r_[first, len(day)]),
+                    "first_period": format_periods(np.minimum.reduceat(per, first), fc.freq),
+                    "last_period": format_periods(np.maximum.reduceat(per, first), fc.freq),
                 }
             )
         )

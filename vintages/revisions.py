@@ -1,6 +1,6 @@
 """Revision statistics and news-versus-noise regressions between two estimates of a variable.
 
-The two estimates are truths (:func:`vintages.infoset.truth_values`), so the transformation is
+The two estimates are truths (:func:`vintages.truths.truth_values`), so the transformation is
 computed inside each estimate's own vintage: the revision of gdp growth between its first and
 its latest estimate compares the growth rate published first with the growth rate in the
 latest vintage, not growth rates of mixed levels.
@@ -49,9 +49,11 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from vintages.contract import SeriesSpec
 from vintages.hac import newey_west_lags, ols_hac
-from vintages.infoset import SeriesSpec, _to_ordinals, parse_truth, truth_values
 from vintages.periods import format_periods
+from vintages.resolve import to_ordinals as _to_ordinals
+from vintages.truths import parse_truth, truth_values
 
 if TYPE_CHECKING:
     from vintages.cube import Cube
@@ -118,7 +120,7 @@ def revision_stats(
         Transformation (and conversion) computed inside each estimate's vintage.
         None: :func:`default_transform`.
     frm, to : str
-        Truth rules of the earlier and the later estimate (:func:`vintages.infoset.parse_truth`).
+        Truth rules of the earlier and the later estimate (:func:`vintages.truths.parse_truth`).
     freq : {"Q", "M"}, optional
         Default: the variable's own frequency (``"Q"`` when the spec converts).
     periods : target periods, optional

@@ -3,7 +3,7 @@
 Every function here maps a 2-D array ``(n_vintages, n_periods)`` to an array of the same
 number of rows: row ``i`` of the output depends on row ``i`` of the input only. One row is one
 vintage (what was known on one day), so a value is never combined with a value from another
-vintage; this is what lets :func:`vintages.infoset.build_infosets` transform all origins at once
+vintage; this is what lets :func:`vintages.infosets.build_infosets` transform all origins at once
 without leaking anything across them. NaN marks a value not published in that vintage and
 propagates (a growth rate needs both of its levels).
 

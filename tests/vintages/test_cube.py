@@ -116,6 +116,65 @@ def test_release_dates_and_raw_array(cube):
     assert int(da.notnull().sum()) == (LOG["variable"] == "out").sum()
 
 
+def test_dataarray_restricted_to_variables_and_releases(cube):
+    """to_dataarray(variables=, releases=) materialises only the cells asked for (NaN on a day without)."""
+    da = cube.to_dataarray("Q", variables=["out"], releases=["2020-05-29", "2020-06-01", "2021-04-30"])
+    assert da.sizes == {"variable": 1, "period": 2, "release": 3}
+    got = da.sel(variable="out").to_pandas()
+    assert got.loc["2020Q1"].tolist()[0] == 1.2 and np.isnan(got.loc["2020Q1"].tolist()[1])
+    assert got.loc["2020Q1"].tolist()[2] == 1.5 and got.loc["2020Q2"].tolist()[2] == 2.4
+    m = cube.to_dataarray("M", variables="cpi")  # default: the variable's own release days
+    assert m["release"].dt.strftime("%Y-%m-%d").values.tolist() == ["2020-02-14", "2020-03-13"]
+    with pytest.raises(KeyError, match=r"unknown Q variable\(s\) \['cpi'\]"):
+        cube.to_dataarray("Q", variables=["cpi"])
+
+
+def test_stores_starting_before_1970():
+    """Periods before 1970 (negative ordinals) and release days before 1970-01-01 are as-of'd by the rules."""
+    log = pd.DataFrame(
+        [
+            ("out", "1959Q1", "1959-04-30", 10.0),
+            ("out", "1959Q1", "1959-05-29", 10.5),
+            ("out", "1959Q2", "1959-07-30", 11.0),
+            ("out", "1959Q1", "1970-02-01", 12.0),  # a benchmark revision across the epoch
+            ("out", "1959Q2", "1970-02-01", 13.0),
+            ("cpi", "1969-12", "1970-01-14", 0.3),
+            ("cpi", "1969-11", "1969-12-12", 0.2),
+        ],
+        columns=["variable", "period", "release", "value"],
+    ).assign(release=lambda d: pd.to_datetime(d["release"]))
+    c = Cube.from_log(log, META)
+    assert c.indexes["Q"].periods.tolist() == [-44, -43]  # pandas ordinals of 1959Q1, 1959Q2
+    assert c.asof("1959-05-28")["out"].to_dict() == {pd.Period("1959Q1", "Q"): 10.0}
+    assert c.asof("1969-12-31")["out"].to_dict() == {pd.Period("1959Q1", "Q"): 10.5,
+                                                     pd.Period("1959Q2", "Q"): 11.0}
+    assert c.asof("1970-02-01")["out"].tolist() == [12.0, 13.0]
+    assert c.asof("1969-12-31")["cpi"].to_dict() == {pd.Period("1969-11", "M"): 0.2}
+    assert c.asof("1970-01-14")["cpi"].tolist() == [0.2, 0.3]
+    assert _q(c.estimate(2, "Q")) == {"1959Q1": 10.5, "1959Q2": 13.0}
+    # 1959Q1 ends 1959-03-31; 60 days later (1959-05-30) the second estimate is in force
+    assert _q(c.lagged(60, "Q"))["1959Q1"] == 10.5
+    assert c.first_release == np.datetime64("1959-04-30")
+    assert c.release_dates("out").astype(str).tolist() == ["1959-04-30", "1959-05-29", "1959-07-30",
+                                                           "1970-02-01"]
+
+
+def test_index_memory_grows_with_values_not_release_days():
+    """The same number of values on 10 or on 2,000 release days takes about the same index memory."""
+    def log_on(n_days: int) -> pd.DataFrame:
+        n = 2000  # 20 monthly variables x 100 months, one release each
+        months = pd.period_range("1990-01", periods=100, freq="M").astype(str)
+        days = pd.Timestamp("1999-01-01") + pd.to_timedelta(np.arange(n) % n_days, unit="D")
+        return pd.DataFrame({"variable": np.repeat([f"v{k:02d}" for k in range(20)], 100),
+                             "period": np.tile(months, 20), "release": days, "value": 1.0})
+
+    meta = {f"v{k:02d}": {"freq": "M"} for k in range(20)}
+    few, many = (Cube.from_log(log_on(n), meta) for n in (10, 2000))
+    assert len(few.indexes["M"].releases) == 10 and len(many.indexes["M"].releases) == 2000
+    # a dense release x variable x period array would be 200 times larger for `many`
+    assert many.nbytes < 1.5 * few.nbytes
+
+
 def test_estimate_number_must_be_positive(cube):
     """estimate(0) is refused with a ValueError naming the bad number."""
     with pytest.raises(ValueError, match="got 0"):
