@@ -13,7 +13,7 @@ after a warm-up; ``threadpoolctl`` caps BLAS at the 2 cores of the project machi
   and ``optimal_loop_reference_s`` the obvious alternative, scipy's SLSQP cell by cell on the
   same windows, on a sample of cells scaled to all of them (the printed name says so);
   ``optimal_loop_over_vectorised_ratio`` their ratio, measured in this run.
-* ``optimal_max_gap``: the largest certified gap left by the solver (its tolerance is 1e-8).
+* ``optimal_max_gap``: the largest certified gap left by the solver (its tolerance is 1e-10).
 
 Run ``python scripts/bench_pools.py``; it prints ``name: value`` lines. ``run()`` returns them.
 """
@@ -24,7 +24,7 @@ import time
 
 import numpy as np
 
-M, O, V, H, D = 4, 84, 2, 9, 2_000
+N_MODELS, N_ORIGINS, N_VARS, N_HORIZONS, N_DRAWS = 4, 84, 2, 9, 2_000
 HORIZONS = np.arange(-1, 8)
 TARGET_S = 5.0
 
@@ -41,14 +41,15 @@ def _best(fn, repeat: int = 3) -> tuple[float, object]:
 def simulated_case(seed: int = 11) -> dict:
     """Members' draws, origins, truths and their release dates of the benchmark case (invented)."""
     rng = np.random.default_rng(seed)
-    origins = np.datetime64("2004-02-15") + 91 * np.arange(O)
-    truth = rng.standard_normal((O, V, H)) * (1.0 + 0.1 * HORIZONS)[None, None, :]
+    m, o, v, h, d = N_MODELS, N_ORIGINS, N_VARS, N_HORIZONS, N_DRAWS
+    origins = np.datetime64("2004-02-15") + 91 * np.arange(o)
+    truth = rng.standard_normal((o, v, h)) * (1.0 + 0.1 * HORIZONS)[None, None, :]
     bias = np.array([0.0, 0.4, -0.3, 0.1])[:, None, None, None, None]
     scale = np.array([1.0, 0.8, 1.5, 1.2])[:, None, None, None, None]
-    draws = (bias + scale * rng.standard_normal((M, O, V, H, D))).astype(np.float32)
+    draws = (bias + scale * rng.standard_normal((m, o, v, h, d))).astype(np.float32)
     # the target quarter ends about 91 (h + 1) days after the origin; first release 30 days later
     release = origins[:, None, None] + (91 * (HORIZONS + 1) + 30)[None, None, :]
-    release = np.broadcast_to(release, (O, V, H)).copy()
+    release = np.broadcast_to(release, (o, v, h)).copy()
     release[release > origins[-1]] = np.datetime64("NaT")
     return {"draws": draws, "origins": origins, "truth": truth, "release": release}
 

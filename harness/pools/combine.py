@@ -74,7 +74,7 @@ def _int_param(value: Any, name: str, low: int, allow_none: bool = False) -> int
 
 def _labels(given: Sequence | None, n: int, what: str) -> list[str]:
     if given is None:
-        return [f"{what} {i}" for i in range(n)]
+        return [str(i) for i in range(n)]
     out = [str(x) for x in given]
     if len(out) != n:
         raise PoolError(f"combine: {len(out)} {what} labels given for {n} {what}s in draws")
@@ -126,7 +126,7 @@ def combine(draws, origins, truth, truth_release, *, scheme: str = "equal",
             window: int | None = None, min_scored: int = 8,
             score: str | Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
             seed: int | np.random.SeedSequence = 0,
-            density_floor: float = DEFAULT_DENSITY_FLOOR, tol: float = 1e-8,
+            density_floor: float = DEFAULT_DENSITY_FLOOR, tol: float = 1e-10,
             max_iter: int = 100, models: Sequence[str] | None = None,
             variables: Sequence[str] | None = None, horizons: Sequence | None = None,
             warn: bool = True) -> PoolResult:
@@ -287,16 +287,19 @@ def combine(draws, origins, truth, truth_release, *, scheme: str = "equal",
             records.append({"variable": var_l[j], "horizon": hor_l[k], "origin": None, "message": (
                 f"fewer than min_scored={min_scored} scored forecasts at every origin "
                 f"(at most {int(count[:, j, k].max())}): equal weights throughout")})
-    # a member without a forecast in a cell gets weight 0; the others are renormalised
+    # a member without a forecast in a cell gets weight 0; the others are renormalised (only
+    # in those cells: every other cell keeps its weights to the last bit)
     avail_t = np.moveaxis(avail, 0, -1)  # (O, V, H, M)
-    if not avail_t.all():
-        w = np.where(avail_t, weights, 0.0)
+    gone = ~avail_t.all(axis=-1)
+    if gone.any():
+        w = np.where(avail_t[gone], weights[gone], 0.0)
         tot = w.sum(axis=-1, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
-            weights = np.where(tot > 0, w / tot, np.nan)
+            w = np.where(tot > 0, w / tot, np.nan)
         # weights learnt on members now missing fall back to equal shares of the others
-        lost = (tot[..., 0] == 0) & avail_t.any(axis=-1)
-        weights[lost] = equal_weights(avail_t[lost])
+        lost = (tot[..., 0] == 0) & avail_t[gone].any(axis=-1)
+        w[lost] = equal_weights(avail_t[gone][lost])
+        weights[gone] = w
         for i in range(m):
             n_fail = int((~avail[i]).sum())
             if n_fail:
@@ -308,7 +311,8 @@ def combine(draws, origins, truth, truth_release, *, scheme: str = "equal",
             oo, jj, kk = np.argwhere(none)[0]
             records.append({"variable": None, "horizon": None, "origin": None, "message": (
                 f"no member has a forecast in {int(none.sum())} cell(s) (first: origin "
-                f"{org[oo]}, {var_l[jj]}, horizon {hor_l[kk]}): the pool has none there either")})
+                f"{org[oo]}, variable {var_l[jj]!r}, horizon {hor_l[kk]}): the pool has none there "
+                "either")})
     pooled = mixture_draws(x, weights, org, seed)
     if records and warn:
         warnings.warn(f"pool ({scheme}): {len(records)} fallback record(s); first: "

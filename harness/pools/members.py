@@ -1,7 +1,8 @@
 """What the weights learn from: each member's score, or predictive density, at each truth.
 
 Every function here works forecast by forecast (one row of draws and one truth), so the value
-of the forecast made at origin ``o'`` depends on that forecast and its truth alone. Rows are
+of the forecast made at origin ``o'`` depends on that forecast and its truth alone (down to
+the last bit: rows are scored one origin at a time). Rows are
 passed to the project's score functions (:mod:`harness.scoring`), so a pool is weighted by the
 very numbers its members are scored by.
 """
@@ -48,21 +49,30 @@ def member_available(draws: np.ndarray) -> np.ndarray:
 
 
 def _per_row(draws: np.ndarray, truth: np.ndarray, fn: ScoreFn, name: str) -> np.ndarray:
-    """Apply ``fn`` to every available member forecast; NaN where the member failed."""
+    """Apply ``fn`` to every available member forecast, origin by origin; NaN where the member failed.
+
+    One call per origin: the rows passed for origin ``o`` are that origin's forecasts only, so
+    their scores are the same floating-point numbers whatever the other origins hold (a BLAS
+    kernel may round a row differently in a batch of another size). Rows with a failed member
+    are left out, so every row passed has all its draws and the score functions take the same
+    path for every row (no NaN branch).
+    """
     m, o, v, h, d = draws.shape
-    rows = draws.reshape(m * o * v * h, d)
-    obs = np.broadcast_to(truth, (m, o, v, h)).reshape(-1)
-    ok = np.isfinite(rows).all(axis=1)
-    out = np.full(rows.shape[0], np.nan)
-    if ok.any():
-        # rows with a failed member are left out before scoring, so every row passed has all
-        # its draws and the score functions take the same path for every row (no NaN branch)
+    out = np.full((m, o, v, h), np.nan)
+    for i in range(o):
+        rows = draws[:, i].reshape(m * v * h, d)
+        obs = np.broadcast_to(truth[i], (m, v, h)).reshape(-1)
+        ok = np.isfinite(rows).all(axis=1)
+        if not ok.any():
+            continue
         val = np.asarray(fn(obs[ok], rows[ok]), dtype=np.float64)
         if val.shape != (int(ok.sum()),):
             raise PoolError(f"pool score {name!r} returned shape {val.shape}; expected one value "
                             f"per forecast, shape ({int(ok.sum())},)")
-        out[ok] = val
-    return out.reshape(m, o, v, h)
+        res = np.full(m * v * h, np.nan)
+        res[ok] = val
+        out[:, i] = res.reshape(m, v, h)
+    return out
 
 
 def member_scores(draws: np.ndarray, truth: np.ndarray, score: str | ScoreFn = "crps") -> np.ndarray:
