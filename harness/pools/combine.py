@@ -187,7 +187,7 @@ def combine(draws, origins, truth, truth_release, *, scheme: str = "equal",
     density_floor : float
         ``optimal`` only: floor of the kernel densities (as in the log score).
     tol, max_iter : float, int
-        ``optimal`` only: certified gap and cycle limit of the solver.
+        ``optimal`` only: certified gap and iteration limit of the solver.
     models, variables, horizons : sequences, optional
         Labels used in messages and warning records.
     warn : bool
