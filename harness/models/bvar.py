@@ -31,6 +31,7 @@ Society of Edinburgh* 53, 260-283 (the Bartlett decomposition of a Wishart matri
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -48,7 +49,18 @@ from harness.models.conditional import var_paths
 from harness.models.errors import ModelParameterError
 from harness.models.params import Interval, Options, PerVariable
 
-__all__ = ["BayesianVAR", "NIWPosterior", "minnesota_dummies", "niw_posterior", "sample_inverse_wishart"]
+__all__ = [
+    "HYPERPARAMETERS",
+    "BayesianVAR",
+    "HyperparameterChoice",
+    "NIWPosterior",
+    "choose_hyperparameters",
+    "gamma_log_density",
+    "log_marginal_likelihood",
+    "minnesota_dummies",
+    "niw_posterior",
+    "sample_inverse_wishart",
+]
 
 # Prior precision of the intercept (BGR 2010's epsilon): small, i.e. a nearly flat prior.
 _CONST_PRECISION = 1e-5
@@ -69,7 +81,9 @@ def minnesota_dummies(y: np.ndarray, lags: int, tightness: float, lag_decay: flo
     * ``diag(s_i)`` with zero regressors: the prior scale of ``Sigma``;
     * the intercept row ``(0, ..., 0, eps)``: a nearly flat prior on the constant;
     * sum of coefficients (if ``mu`` given): ``Y_d = diag(m_i ybar_i)/mu``,
-      ``X_d = (1_p' (x) diag(m_i ybar_i))/mu``; inactive for variables with ``m_i = 0``, as in BGR;
+      ``X_d = (1_p' (x) diag(m_i ybar_i))/mu``; inactive for variables with ``m_i = 0``, as in
+      BGR: their rows would be all zero, so they are left out (an all-zero dummy row changes
+      no coefficient but would add one to the degrees of freedom of ``Sigma``'s prior);
     * co-persistence (if ``delta`` given): ``Y_d = ybar'/delta``, ``X_d = ((1_p' (x) ybar'), 1)/delta``.
 
     ``ybar`` is the mean of the first ``p`` observations. Smaller ``lambda``, ``mu``, ``delta``
@@ -115,8 +129,9 @@ def minnesota_dummies(y: np.ndarray, lags: int, tightness: float, lag_decay: flo
     ybar = y[:lags].mean(axis=0)
     if sum_of_coefficients is not None:
         d = np.diag(prior_mean * ybar) / sum_of_coefficients
+        d = d[prior_mean * ybar != 0]  # rows of variables with m_i = 0 are all zero: inactive
         rows_y.append(d)
-        rows_x.append(np.concatenate([np.tile(d, (1, lags)), np.zeros((n, 1))], axis=1))
+        rows_x.append(np.concatenate([np.tile(d, (1, lags)), np.zeros((len(d), 1))], axis=1))
     if co_persistence is not None:
         rows_y.append(ybar[None, :] / co_persistence)
         rows_x.append(np.concatenate([np.tile(ybar, lags), [1.0]])[None, :] / co_persistence)
@@ -266,6 +281,316 @@ def niw_posterior(y: np.ndarray, lags: int, y_d: np.ndarray, x_d: np.ndarray) ->
     return NIWPosterior(coef, np.linalg.inv(r), scale, dof)
 
 
+def log_marginal_likelihood(y: np.ndarray, lags: int, y_d: np.ndarray, x_d: np.ndarray) -> float:
+    """Closed-form log marginal likelihood of the conjugate NIW VAR with a dummy-observation prior.
+
+    The dummies ``(Y_d, X_d)`` with ``p(Sigma) ~ |Sigma|^{-(n+3)/2}`` imply the proper prior
+    ``Sigma ~ IW(S_0, nu_0)``, ``vec B | Sigma ~ N(vec B_0, Sigma (x) Omega_0)`` with
+    ``Omega_0 = (X_d'X_d)^{-1}``, ``B_0 = Omega_0 X_d'Y_d``,
+    ``S_0 = (Y_d - X_d B_0)'(Y_d - X_d B_0)`` and ``nu_0 = T_d + 2 - k`` (the prior of
+    :func:`niw_posterior`). Conditional on the first ``p`` observations,
+
+    .. math::
+
+        \\log p(Y) = -\\tfrac{nT}{2}\\log\\pi
+          + \\log\\Gamma_n(\\tfrac{\\nu_0 + T}{2}) - \\log\\Gamma_n(\\tfrac{\\nu_0}{2})
+          + \\tfrac{n}{2}(\\log|X_d'X_d| - \\log|X_*'X_*|)
+          + \\tfrac{\\nu_0}{2}\\log|S_0| - \\tfrac{\\nu_0 + T}{2}\\log|\\tilde S|,
+
+    where ``T = T_obs - p``, ``X_*`` stacks data and dummies and ``S~`` is the posterior scale
+    (GLP 2015, Appendix, with ``Omega = Omega_0``, ``b = B_0``, ``Psi = S_0``, ``d = nu_0``).
+    Each determinant pair comes from the triangular factor of one Householder QR of
+    ``[X | Y]`` (its leading block factors ``X'X``, its trailing block the residual
+    cross-product ``S``), so nothing is inverted or differenced. Needs ``T_d >= k + n`` (the
+    Minnesota dummies have exactly ``k + n`` rows, more with the other blocks).
+
+    Parameters
+    ----------
+    y : ndarray (T_obs, n)
+        The balanced estimation sample.
+    lags : int
+    y_d, x_d : ndarray
+        Dummy observations (see :func:`minnesota_dummies`); ``x_d`` of full column rank.
+
+    Returns
+    -------
+    float
+
+    References
+    ----------
+    Giannone, D., Lenza, M. and Primiceri, G. E. (2015). Prior selection for vector
+    autoregressions. *Review of Economics and Statistics* 97(2), 436-451.
+    Zellner, A. (1971). *An Introduction to Bayesian Inference in Econometrics*. Wiley, ch. 8
+    (the matrix-variate normal-Wishart marginal likelihood).
+    """
+    return _Evidence(y, lags)(y_d, x_d)
+
+
+def _log_multigamma(a: float, n: int) -> float:
+    """log Gamma_n(a) = n(n-1)/4 log(pi) + sum_j log Gamma(a - j/2), j = 0..n-1 (no scipy import)."""
+    return 0.25 * n * (n - 1) * math.log(math.pi) + sum(math.lgamma(a - 0.5 * j) for j in range(n))
+
+
+class _Evidence:
+    """The log marginal likelihood as a function of the dummies; the data's lag design built once."""
+
+    def __init__(self, y: np.ndarray, lags: int):
+        self.yt, self.x = lag_design(y, lags)
+
+    def __call__(self, y_d: np.ndarray, x_d: np.ndarray) -> float:
+        yt, x = self.yt, self.x
+        t, n = yt.shape
+        k = x_d.shape[1]
+        nu0 = len(y_d) + 2 - k
+        if nu0 <= n - 1:
+            raise ValueError(f"the dummy prior has nu_0 = {nu0} <= n - 1 = {n - 1}: Sigma's prior is "
+                             "improper and the marginal likelihood undefined")
+        # R of [X | Y] = [[R_xx, Q'Y], [0, R_yy]] with R_yy'R_yy the residual cross-product
+        # of Y on X: both determinants from one QR each, no Q formed, no solve
+        r0 = np.linalg.qr(np.concatenate([x_d, y_d], axis=1), mode="r")
+        r = np.linalg.qr(np.concatenate([np.concatenate([x, yt], axis=1),
+                                         np.concatenate([x_d, y_d], axis=1)]), mode="r")
+        d0, d1 = np.log(np.abs(np.diag(r0))), np.log(np.abs(np.diag(r)))
+        logdet_prior, ld_s0 = 2.0 * d0[:k].sum(), 2.0 * d0[k:].sum()
+        logdet_post, ld_s = 2.0 * d1[:k].sum(), 2.0 * d1[k:].sum()
+        nu = nu0 + t
+        return float(-0.5 * n * t * math.log(math.pi) + _log_multigamma(0.5 * nu, n)
+                     - _log_multigamma(0.5 * nu0, n) + 0.5 * n * (logdet_prior - logdet_post)
+                     + 0.5 * nu0 * ld_s0 - 0.5 * nu * ld_s)
+
+
+#: GLP (2015) hyperpriors (Gamma: mode, standard deviation) and search bounds of each
+#: hyperparameter chosen by the data ("from memory": GLP 2015, Section 3 and their replication
+#: code; lambda: mode 0.2, sd 0.4; mu and delta: mode 1, sd 1; bounds [1e-4, 5] and [1e-4, 50])
+HYPERPARAMETERS: dict[str, dict[str, float]] = {
+    "tightness": {"mode": 0.2, "sd": 0.4, "low": 1e-4, "high": 5.0},
+    "sum_of_coefficients": {"mode": 1.0, "sd": 1.0, "low": 1e-4, "high": 50.0},
+    "co_persistence": {"mode": 1.0, "sd": 1.0, "low": 1e-4, "high": 50.0},
+}
+
+
+def gamma_log_density(x: float, mode: float, sd: float) -> float:
+    """Log density at ``x`` of the Gamma law with the given mode and standard deviation.
+
+    Shape ``a`` and scale ``s`` solve ``(a - 1) s = mode`` and ``a s^2 = sd^2``:
+    ``s = (sqrt(mode^2 + 4 sd^2) - mode) / 2``, ``a = 1 + mode / s``.
+    """
+    scale = 0.5 * (math.sqrt(mode * mode + 4.0 * sd * sd) - mode)
+    shape = 1.0 + mode / scale
+    return (shape - 1.0) * math.log(x) - x / scale - shape * math.log(scale) - math.lgamma(shape)
+
+
+@dataclass(frozen=True)
+class HyperparameterChoice:
+    """Hyperparameters chosen by the marginal likelihood (None = block off).
+
+    Attributes
+    ----------
+    values : dict
+        ``tightness``, ``sum_of_coefficients``, ``co_persistence`` as used.
+    log_ml : float
+        Log marginal likelihood at ``values``.
+    log_hyperprior : float
+        Log hyperprior density of the chosen values (0 with a flat hyperprior).
+    evaluations : int
+        Marginal likelihood evaluations spent.
+    at_bound : bool
+        A chosen value sits on its search bound.
+    """
+
+    values: dict
+    log_ml: float
+    log_hyperprior: float
+    evaluations: int
+    at_bound: bool
+
+
+def _dummy_scaler(y: np.ndarray, lags: int, lag_decay: float, prior_mean: np.ndarray,
+                  scales: np.ndarray, soc: bool, cop: bool):
+    """Dummies as a function of (lambda, mu, delta): each block is its unit-scale rows over its value.
+
+    Equal to :func:`minnesota_dummies` (up to rounding), built once instead of per evaluation.
+    """
+    n = y.shape[1]
+    y1, x1 = minnesota_dummies(y, lags, 1.0, lag_decay, prior_mean, scales,
+                               1.0 if soc else None, 1.0 if cop else None)
+    n_lag = n * lags
+    n_soc = int((prior_mean * y[:lags].mean(axis=0) != 0).sum()) if soc else 0
+    start_soc = n_lag + n + 1
+
+    def build(lam: float, mu: float | None, delta: float | None) -> tuple[np.ndarray, np.ndarray]:
+        inv = np.ones(len(y1))
+        inv[:n_lag] = 1.0 / lam
+        if soc:
+            inv[start_soc:start_soc + n_soc] = 1.0 / mu
+        if cop:
+            inv[-1] = 1.0 / delta
+        return y1 * inv[:, None], x1 * inv[:, None]
+
+    return build
+
+
+def _golden_max(f, lo: float, hi: float, tol: float = 1e-6) -> tuple[float, float]:
+    """Maximise a unimodal ``f`` on ``[lo, hi]`` by golden-section search (Kiefer 1953)."""
+    inv_phi = (math.sqrt(5.0) - 1.0) / 2.0
+    a, b = lo, hi
+    c, d = b - inv_phi * (b - a), a + inv_phi * (b - a)
+    fc, fd = f(c), f(d)
+    while b - a > tol:
+        if fc >= fd:
+            b, d, fd = d, c, fc
+            c = b - inv_phi * (b - a)
+            fc = f(c)
+        else:
+            a, c, fc = c, d, fd
+            d = a + inv_phi * (b - a)
+            fd = f(d)
+    # the ends too: the maximum may sit on the search bound
+    cands = [(fc, c), (fd, d), (f(lo), lo) if a == lo else (-np.inf, a),
+             (f(hi), hi) if b == hi else (-np.inf, b)]
+    fx, x = max(cands)
+    return x, fx
+
+
+def _box_newton_max(f, x0: np.ndarray, lo: np.ndarray, hi: np.ndarray, h: float = 1e-3,
+                    max_iter: int = 50) -> tuple[np.ndarray, float]:
+    """Maximise a smooth ``f`` on a box by projected quasi-Newton steps.
+
+    Central-difference gradients; the Hessian by central differences at the start, then BFGS
+    updates (kept negative definite: an update is skipped when the curvature condition fails).
+    Coordinates on a bound whose gradient points out of the box are held there; steps are
+    clipped to the box and halved until ``f`` rises (Armijo) - the projected Newton scheme of
+    Bertsekas (1982) with the BFGS update of Nocedal & Wright (2006, ch. 6).
+    """
+    x = np.clip(np.asarray(x0, dtype=float), lo, hi)
+    fx = f(x)
+    d = len(x)
+    eye = np.eye(d) * h
+
+    def grad(z, fz):
+        fp = np.array([f(z + e) for e in eye])
+        fm = np.array([f(z - e) for e in eye])
+        return (fp - fm) / (2 * h), fp, fm
+
+    g, fp, fm = grad(x, fx)
+    a = np.diag(-(fp - 2 * fx + fm) / h**2)  # a = minus the Hessian, kept positive definite
+    for i in range(d):
+        for j in range(i + 1, d):
+            a[i, j] = a[j, i] = -(f(x + eye[i] + eye[j]) - f(x + eye[i] - eye[j])
+                                  - f(x - eye[i] + eye[j]) + f(x - eye[i] - eye[j])) / (4 * h * h)
+    val, vec = np.linalg.eigh(a)
+    a = (vec * np.maximum(val, 1e-6)) @ vec.T
+    for _ in range(max_iter):
+        held = ((x <= lo) & (g < 0)) | ((x >= hi) & (g > 0))
+        free = ~held
+        if not free.any() or np.abs(g[free]).max() < 1e-6:
+            break
+        step = np.zeros(d)
+        step[free] = np.linalg.solve(a[np.ix_(free, free)], g[free])
+        t, moved = 1.0, False
+        for _ in range(30):
+            xn = np.clip(x + t * step, lo, hi)
+            fn = f(xn)
+            if fn >= fx + 1e-4 * float(g @ (xn - x)):
+                moved = True
+                break
+            t *= 0.5
+        if not moved or fn < fx:
+            break
+        gn, _, _ = grad(xn, fn)
+        sv, yv = xn - x, -(gn - g)  # yv: change of the gradient of -f
+        if sv @ yv > 1e-12:
+            av = a @ sv
+            a = a - np.outer(av, av) / (sv @ av) + np.outer(yv, yv) / (yv @ sv)
+        done = np.abs(sv).max() < 1e-7
+        x, fx, g = xn, fn, gn
+        if done:
+            break
+    return x, fx
+
+
+def choose_hyperparameters(y: np.ndarray, lags: int, lag_decay: float, prior_mean: np.ndarray,
+                           scales: np.ndarray, fixed: dict, free: list[str],
+                           hyperprior: str = "flat") -> HyperparameterChoice:
+    """Maximise the marginal likelihood (or the hyperparameters' posterior) over ``free``.
+
+    The objective is :func:`log_marginal_likelihood` of the dummy prior built with the
+    hyperparameters, plus (``hyperprior="glp"``) the log Gamma hyperprior densities of
+    :data:`HYPERPARAMETERS` (GLP 2015); it is maximised over the logarithms of the free
+    hyperparameters within their bounds, starting from the best point of a coarse grid
+    (9 points for one hyperparameter, 5 per dimension for several): one by golden-section
+    search in the grid point's bracket, several by projected quasi-Newton steps. Numpy and the
+    standard library only (no scipy.optimize import in the workers). The residual scales
+    ``s_i`` stay at their AR(1) values (GLP also estimate them; here they are fixed, as in BGR
+    2010).
+
+    Parameters
+    ----------
+    y : ndarray (T, n)
+        Balanced estimation sample.
+    lags, lag_decay : int, float
+    prior_mean, scales : ndarray (n,)
+    fixed : dict
+        Values of the hyperparameters not chosen here (``None`` = block off).
+    free : list of str
+        Names among ``tightness``, ``sum_of_coefficients``, ``co_persistence``.
+    hyperprior : {"flat", "glp"}
+
+    Returns
+    -------
+    HyperparameterChoice
+
+    References
+    ----------
+    Giannone, D., Lenza, M. and Primiceri, G. E. (2015). Prior selection for vector
+    autoregressions. *Review of Economics and Statistics* 97(2), 436-451.
+    Kiefer, J. (1953). Sequential minimax search for a maximum. *Proceedings of the American
+    Mathematical Society* 4(3), 502-506.
+    Bertsekas, D. P. (1982). Projected Newton methods for optimization problems with simple
+    constraints. *SIAM Journal on Control and Optimization* 20(2), 221-246.
+    Nocedal, J. and Wright, S. J. (2006). *Numerical Optimization*, 2nd ed. Springer, ch. 6.
+    """
+    names = ("tightness", "sum_of_coefficients", "co_persistence")
+    vals0 = {**fixed, **dict.fromkeys(free, 1.0)}
+    build = _dummy_scaler(y, lags, lag_decay, prior_mean, scales,
+                          vals0["sum_of_coefficients"] is not None, vals0["co_persistence"] is not None)
+    evidence = _Evidence(y, lags)
+    lo = np.log([HYPERPARAMETERS[k]["low"] for k in free])
+    hi = np.log([HYPERPARAMETERS[k]["high"] for k in free])
+    count = [0]
+
+    def values_at(theta) -> dict:
+        return {**fixed, **{k: float(math.exp(v)) for k, v in zip(free, theta, strict=True)}}
+
+    def prior(vals: dict) -> float:
+        if hyperprior != "glp":
+            return 0.0
+        return sum(gamma_log_density(vals[k], HYPERPARAMETERS[k]["mode"], HYPERPARAMETERS[k]["sd"])
+                   for k in free)
+
+    def objective(theta) -> float:
+        count[0] += 1
+        vals = values_at(np.atleast_1d(theta))
+        return evidence(*build(*(vals[k] for k in names))) + prior(vals)
+
+    if len(free) == 1:
+        grid = np.linspace(lo[0], hi[0], 9)
+        i = int(np.argmax([objective(g) for g in grid]))
+        x, _ = _golden_max(objective, grid[max(i - 1, 0)], grid[min(i + 1, 8)])
+        theta = np.array([x])
+    else:
+        axes = [np.linspace(a, b, 5) for a, b in zip(lo, hi, strict=True)]
+        grid = np.array(np.meshgrid(*axes, indexing="ij")).reshape(len(free), -1).T
+        start = grid[int(np.argmax([objective(g) for g in grid]))]
+        theta, _ = _box_newton_max(objective, start, lo, hi)
+    vals = values_at(theta)
+    y_d, x_d = minnesota_dummies(y, lags, vals["tightness"], lag_decay, prior_mean, scales,
+                                 vals["sum_of_coefficients"], vals["co_persistence"])
+    log_ml = evidence(y_d, x_d)
+    at_bound = bool(np.any((theta <= lo + 1e-6) | (theta >= hi - 1e-6)))
+    return HyperparameterChoice(vals, log_ml, prior(vals), count[0], at_bound)
+
+
 def ragged_split(values: np.ndarray) -> tuple[int, int, int]:
     """``(start, stop, tail_end)``: the balanced block ``[start, stop)`` and the tail ``[stop, tail_end)``.
 
@@ -293,9 +618,11 @@ class BayesianVAR(BaseModel):
     ----------
     lags : int, default 4
         VAR order ``p``.
-    tightness : float, default 0.2
+    tightness : float or "ml", default 0.2
         Overall prior standard deviation ``lambda`` (Litterman's lambda_1); large = loose, and as
-        ``lambda -> inf`` with the other blocks off the posterior mean tends to OLS.
+        ``lambda -> inf`` with the other blocks off the posterior mean tends to OLS. ``"ml"``:
+        chosen at each origin by maximising the marginal likelihood of the balanced sample
+        (Giannone, Lenza & Primiceri 2015; see ``hyperprior``).
     cross : float, default 1.0
         Relative tightness of other variables' lags. In the conjugate form the prior covariance
         is ``Sigma (x) Omega_0``: one ``Omega_0`` for all equations, so own and cross lags of a
@@ -304,11 +631,13 @@ class BayesianVAR(BaseModel):
         free ``cross``.
     lag_decay : float, default 1.0
         ``d``: the prior s.d. of lag ``l`` coefficients falls as ``l^{-d}`` (BGR 2010 use ``d=1``).
-    sum_of_coefficients : float or None, default None
-        ``mu`` of the sum-of-coefficients dummies (Doan, Litterman & Sims 1984); None = off.
-    co_persistence : float or None, default None
+    sum_of_coefficients : float, "ml" or None, default None
+        ``mu`` of the sum-of-coefficients dummies (Doan, Litterman & Sims 1984); None = off;
+        ``"ml"`` = chosen with the other ``"ml"`` hyperparameters. Rows of variables whose
+        prior mean is 0 are all zero and left out.
+    co_persistence : float, "ml" or None, default None
         ``delta`` of the co-persistence ("dummy initial observation") row (Sims 1993;
-        Sims & Zha 1998); None = off.
+        Sims & Zha 1998); None = off; ``"ml"`` = chosen with the other ``"ml"`` ones.
     prior_mean : float or dict, default 0.0
         Prior mean of the own first-lag coefficient: 1 for levels (random walk), 0 for growth
         rates (white noise); a scalar or ``{variable: value}``.
@@ -318,6 +647,19 @@ class BayesianVAR(BaseModel):
         covariance ``Sigma``. Estimation is Gaussian either way.
     df : float, default 5.0
         Degrees of freedom of Student-t shocks (> 2).
+    hyperprior : {"flat", "glp"}, default "flat"
+        For ``"ml"`` hyperparameters: ``"flat"`` maximises the marginal likelihood
+        (empirical Bayes); ``"glp"`` maximises the hyperparameters' posterior under GLP's
+        Gamma hyperpriors (:data:`HYPERPARAMETERS`). Unused when none is ``"ml"``.
+
+    Attributes
+    ----------
+    posterior_ : NIWPosterior
+    diagnostics_ : dict of float
+        Per forecast: the hyperparameters used (``tightness``, and ``sum_of_coefficients`` /
+        ``co_persistence`` when on), ``log_ml`` (the log marginal likelihood at them), and
+        when any is ``"ml"`` also ``log_hyperprior``, ``ml_evaluations`` and ``at_bound``
+        (1.0 if a chosen value sits on its search bound).
 
     Notes
     -----
@@ -337,25 +679,27 @@ class BayesianVAR(BaseModel):
     """
 
     name = "bvar"
-    version = "1"
+    # 2: zero-mean sum-of-coefficients rows dropped (changes Sigma's prior dof); "ml" options
+    version = "2"
     param_constraints = {
         "lags": [Interval(int, 1, None)],
-        "tightness": [Interval(float, 0, None, closed="neither")],
+        "tightness": [Interval(float, 0, None, closed="neither"), Options("ml")],
         # the conjugate NIW form's Kronecker structure shrinks own and cross lags alike: only 1
         # is coherent (use model 'bvar_sv' for cross != 1)
         "cross": [Interval(float, 1.0, 1.0)],
         "lag_decay": [Interval(float, 0, None)],
-        "sum_of_coefficients": [Interval(float, 0, None, closed="neither"), None],
-        "co_persistence": [Interval(float, 0, None, closed="neither"), None],
+        "sum_of_coefficients": [Interval(float, 0, None, closed="neither"), Options("ml"), None],
+        "co_persistence": [Interval(float, 0, None, closed="neither"), Options("ml"), None],
         "prior_mean": [Interval(float), PerVariable(Interval(float))],
         "shocks": [Options("gaussian", "student")],
         "df": [Interval(float, 0, None, closed="neither")],
+        "hyperprior": [Options("flat", "glp")],
     }
 
-    def __init__(self, lags: int = 4, tightness: float = 0.2, cross: float = 1.0,
-                 lag_decay: float = 1.0, sum_of_coefficients: float | None = None,
-                 co_persistence: float | None = None, prior_mean: float | dict = 0.0,
-                 shocks: str = "gaussian", df: float = 5.0):
+    def __init__(self, lags: int = 4, tightness: float | str = 0.2, cross: float = 1.0,
+                 lag_decay: float = 1.0, sum_of_coefficients: float | str | None = None,
+                 co_persistence: float | str | None = None, prior_mean: float | dict = 0.0,
+                 shocks: str = "gaussian", df: float = 5.0, hyperprior: str = "flat"):
         self.lags = lags
         self.tightness = tightness
         self.cross = cross
@@ -365,6 +709,7 @@ class BayesianVAR(BaseModel):
         self.prior_mean = prior_mean
         self.shocks = shocks
         self.df = df
+        self.hyperprior = hyperprior
 
     @classmethod
     def check_params(cls, params: dict, model: str) -> None:
@@ -382,9 +727,25 @@ class BayesianVAR(BaseModel):
                              f"at least lags + 3 = {p + 3} periods, got {y.shape[0]}")
         scales = ar1_scales(y)
         m = per_variable(self, "prior_mean", self.prior_mean, variables)
-        y_d, x_d = minnesota_dummies(y, p, float(self.tightness), float(self.lag_decay), m, scales,
-                                     self.sum_of_coefficients, self.co_persistence)
+        names = ("tightness", "sum_of_coefficients", "co_persistence")
+        given = {k: getattr(self, k) for k in names}
+        free = [k for k in names if given[k] == "ml"]
+        fixed = {k: (None if v is None else float(v)) for k, v in given.items() if k not in free}
+        diag: dict[str, float] = {}
+        if free:
+            choice = choose_hyperparameters(y, p, float(self.lag_decay), m, scales, fixed, free,
+                                            self.hyperprior)
+            hyper = choice.values
+            diag.update(log_hyperprior=choice.log_hyperprior,
+                        ml_evaluations=float(choice.evaluations),
+                        at_bound=float(choice.at_bound))
+        else:
+            hyper = fixed
+        y_d, x_d = minnesota_dummies(y, p, hyper["tightness"], float(self.lag_decay), m, scales,
+                                     hyper["sum_of_coefficients"], hyper["co_persistence"])
         self.scales_ = scales
+        self.diagnostics_ = {**{k: float(v) for k, v in hyper.items() if v is not None},
+                             "log_ml": log_marginal_likelihood(y, p, y_d, x_d), **diag}
         return niw_posterior(y, p, y_d, x_d)
 
     def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:

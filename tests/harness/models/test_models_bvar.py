@@ -87,7 +87,11 @@ def test_sampler_moments_match_the_niw_closed_form():
     se_b = coefs.std(axis=0) / np.sqrt(d)
     assert np.all(np.abs(coefs.mean(axis=0) - post.coef_mean) < 5 * se_b)
     vec = coefs.transpose(0, 2, 1).reshape(d, -1)  # vec() stacks columns (equations)
-    np.testing.assert_allclose(np.cov(vec.T), np.kron(e_sigma, post.omega), rtol=0.03, atol=1e-4)
+    ref = np.kron(e_sigma, post.omega)
+    # Monte Carlo s.e. of a sample covariance, sqrt((s_ii s_jj + s_ij^2) / d) (Anderson 2003,
+    # ch. 3, normal case; the t-like marginals add a little, hence 6 s.e.)
+    se_cov = np.sqrt((np.outer(np.diag(ref), np.diag(ref)) + ref**2) / d)
+    assert np.all(np.abs(np.cov(vec.T) - ref) < 6 * se_cov)
 
 
 def test_inverse_wishart_draws_match_scipy():
