@@ -21,7 +21,7 @@ from harness.pools.members import member_available, member_density, member_score
 from harness.pools.sampling import mixture_draws
 from harness.pools.weights import equal_weights, inverse_score_weights, optimal_weights
 from harness.pools.window import scored_window
-from harness.scoring import DEFAULT_DENSITY_FLOOR
+from harness.scores import DEFAULT_DENSITY_FLOOR
 
 __all__ = ["PoolResult", "combine"]
 
@@ -139,7 +139,7 @@ def combine(draws, origins, truth, truth_release, *, scheme: str = "equal",
       (default the CRPS) over the window (:func:`harness.pools.inverse_score_weights`).
     * ``"optimal"``: the weights on the simplex maximising the average log score of the pool
       over the window (Hall & Mitchell 2007; Geweke & Amisano 2011), each member's predictive
-      density at a truth being the kernel density of :func:`harness.scoring.log_score` (same
+      density at a truth being the kernel density of :func:`harness.scores.log_score` (same
       bandwidth, same floor; :func:`harness.pools.member_density`), solved to a certified gap
       ``tol`` (:func:`harness.pools.optimal_weights`).
 

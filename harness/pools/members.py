@@ -3,7 +3,7 @@
 Every function here works forecast by forecast (one row of draws and one truth), so the value
 of the forecast made at origin ``o'`` depends on that forecast and its truth alone (down to
 the last bit: rows are scored one origin at a time). Rows are
-passed to the project's score functions (:mod:`harness.scoring`), so a pool is weighted by the
+passed to the project's score functions (:mod:`harness.scores`), so a pool is weighted by the
 very numbers its members are scored by.
 """
 
@@ -14,7 +14,7 @@ from collections.abc import Callable
 import numpy as np
 
 from harness.pools.errors import PoolError
-from harness.scoring import DEFAULT_DENSITY_FLOOR, crps_sorted, log_score, point_errors
+from harness.scores import DEFAULT_DENSITY_FLOOR, crps_sorted, log_score, point_errors
 
 __all__ = ["SCORES", "member_available", "member_density", "member_scores", "resolve_score"]
 
@@ -100,7 +100,7 @@ def member_density(draws: np.ndarray, truth: np.ndarray, *,
                    density_floor: float = DEFAULT_DENSITY_FLOOR) -> np.ndarray:
     """Each member's predictive density at its truth: the kernel density of the project's log score.
 
-    ``f = exp(-log_score)``, with :func:`harness.scoring.log_score`'s Gaussian kernel, Silverman
+    ``f = exp(-log_score)``, with :func:`harness.scores.log_score`'s Gaussian kernel, Silverman
     bandwidth and floor: ``f >= density_floor`` everywhere, so a member's mean log density
     equals minus its mean log score exactly, and an ensemble without spread (an already
     published target) has the floor density.
@@ -110,7 +110,7 @@ def member_density(draws: np.ndarray, truth: np.ndarray, *,
     draws : ndarray, shape (M, O, V, H, D)
     truth : ndarray, shape (O, V, H)
     density_floor : float
-        As in :func:`harness.scoring.log_score`.
+        As in :func:`harness.scores.log_score`.
 
     Returns
     -------

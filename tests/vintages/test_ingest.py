@@ -470,7 +470,7 @@ def test_triangle_needs_variable_and_csv(store, tmp_path):
 def test_unknown_layout_and_frequency_options(store, tmp_path):
     """Unknown layout or frequency options are refused, listing the valid ones sorted."""
     p = write(tmp_path, "a.csv", SEED_CSV)
-    refused(store, p, line=None, field=None, says="expected one of ['long', 'triangle']", layout="wide")
+    refused(store, p, line=None, field=None, says="expected one of ['long', 'sdmx-csv', 'triangle']", layout="wide")
     refused(store, p, line=None, field=None, says="expected one of ['M', 'Q']", freq="A")
 
 

@@ -16,7 +16,7 @@ from harness.pools import (
     member_density,
     member_scores,
 )
-from harness.scoring import DEFAULT_DENSITY_FLOOR, crps_sorted, log_score, silverman_bandwidth
+from harness.scores import DEFAULT_DENSITY_FLOOR, crps_sorted, log_score, silverman_bandwidth
 
 NAT = np.datetime64("NaT")
 
