@@ -40,8 +40,11 @@ may rest on one or two months; ``InfoSet.partial`` flags such cells. :class:`Tar
 treats a flagged cell as *unobserved*: it is NaN in ``layout.values`` (so no model estimates on
 it or conditions a ragged edge on it), it is not a published target (so the quarter is
 forecast, not returned as a point mass at the partial mean), and ``layout.left_out`` records
-where it was. A model that wants to use the partial information must read it from ``info``
-itself, deliberately, and model it as what it is (an average of fewer months).
+where it was. :func:`harness.testing.check_model` checks this as a law (flagging a cell
+partial gives the draws of deleting it). A model that wants the months already known should
+use them where they are what they are, single months: the native-frequency information set
+(monthly indicators on their own axis, ``infoset_layout = "native"``), not a quarterly mean of
+fewer months.
 """
 
 from __future__ import annotations
