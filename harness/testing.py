@@ -1,11 +1,16 @@
 """Conformance checks for forecasting models, and small builders of synthetic information sets.
 
 :func:`check_model` runs every ``check_*`` function of this module against one model (in the
-spirit of scikit-learn's ``check_estimator``) and raises one ``AssertionError`` naming each check
-that failed and why. :func:`model_checks` yields the checks one by one, e.g. for
-``pytest.mark.parametrize``. The laws checked:
+spirit of scikit-learn's ``check_estimator``) and returns a :class:`CheckReport`: each check,
+passed, failed or skipped, and why. ``report.raise_if_failed()`` (or ``strict=True``) raises one
+``AssertionError`` naming every failed check, for tests. :func:`model_checks` yields the checks
+one by one; :func:`registered_cases` lists the check cases of every registered model (each
+class's :meth:`~harness.models.base.BaseModel.check_cases`), for ``pytest.mark.parametrize``.
 
-* the draws have dims ``(draw, variable, horizon)``, the declared coordinates, float64, no NaN;
+The laws checked:
+
+* the draws satisfy the output contract (:func:`harness.models.contract.validate_forecast`):
+  dims ``(draw, variable, horizon)``, the declared coordinates, float64, all finite;
 * the same seed gives identical draws, whatever the global NumPy random state; another seed
   gives different draws;
 * the model pickles, before and after a forecast, and the copy forecasts identically;
@@ -13,34 +18,66 @@ that failed and why. :func:`model_checks` yields the checks one by one, e.g. for
 * the model reads only the information set: a copy of the panel stripped of attributes and
   extra coordinates gives identical draws, trailing all-NaN periods change nothing (or raise a
   ``ValueError``), and the information set is not modified;
-* targets already observed are returned as their observed value in every draw;
+* targets already published are returned as their published value in every draw;
+* a cell flagged partial (``InfoSet.partial``) is treated exactly like a missing one;
+* on a noise-free deterministic path (a straight line per variable, unless the case says
+  otherwise) the draws centre on the path's continuation at each target's own period: a model
+  that is one horizon off fails;
 * a one-period information set raises :class:`harness.models.InsufficientDataError`.
+
+Example
+-------
+>>> from harness.models import AutoRegression
+>>> report = check_model(AutoRegression())                       # doctest: +SKIP
+>>> print(report)                                                # doctest: +SKIP
+model 'ar': 12 passed, 0 failed, 0 skipped
+  pass  check_attributes  ...
+>>> report.raise_if_failed()                                     # doctest: +SKIP
 """
 
 from __future__ import annotations
 
+import functools
 import json
 import pickle
-from collections.abc import Callable, Iterator
-from dataclasses import replace
-from typing import Any
+import time
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import dataclass, replace
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
 import xarray as xr
 
+from harness.models.contract import (
+    EXACT_PATHS,
+    CheckCase,
+    check_cases_of,
+    model_label,
+    validate_forecast,
+)
 from harness.models.errors import InsufficientDataError
 from vintages import InfoSet, Targets
 
 __all__ = [
+    "CheckCase",
+    "CheckReport",
+    "CheckResult",
+    "SkipCheck",
     "check_model",
+    "default_case",
     "make_infoset",
     "make_targets",
     "model_checks",
+    "registered_cases",
     "simulated_panel",
 ]
 
 _DRAWS = 64
+
+
+class SkipCheck(Exception):  # noqa: N818 - a signal, like unittest.SkipTest
+    """Raised by a check that does not apply to the case; the message says why."""
 
 
 def make_infoset(values: np.ndarray, variables: list[str] | tuple[str, ...], start: str = "1990Q1",
@@ -125,11 +162,17 @@ def simulated_panel(n_periods: int = 80, n_vars: int = 3, seed: int = 0, ragged:
     return y
 
 
-def _default_case(info: InfoSet | None, targets: Targets | None) -> tuple[InfoSet, Targets]:
+def default_case(info: InfoSet | None = None, targets: Targets | None = None
+                 ) -> tuple[InfoSet, Targets]:
+    """The information set and targets the checks use unless told otherwise.
+
+    A simulated 3-variable (``output``, ``prices``, ``jobs``), 80-quarter VAR(1) panel whose last
+    row keeps only ``output``; targets: ``output`` and ``prices`` at horizons ``(-1, 0, 1, 4)``
+    (horizon -1 is the last panel row: published for ``output``, not for ``prices``).
+    """
     if info is None:
         info = make_infoset(simulated_panel(), ["output", "prices", "jobs"])
     if targets is None:
-        # horizon -1 is the last panel row: observed for "output", unobserved for the rest
         targets = make_targets(info, info.variables[:2], (-1, 0, 1, 4))
     return info, targets
 
@@ -138,19 +181,19 @@ def _run(model, info: InfoSet, targets: Targets, seed: int = 1, n_draws: int = _
     return model.forecast(info, targets, n_draws, np.random.default_rng(seed))
 
 
+def _panel_like(info: InfoSet, values: np.ndarray) -> xr.DataArray:
+    """A bare panel (no attributes, no extra coordinates) with ``info``'s periods and variables."""
+    return xr.DataArray(values, dims=("period", "variable"),
+                        coords={"period": info.periods.copy(), "variable": list(info.variables)})
+
+
+def _partial(info: InfoSet) -> np.ndarray:
+    from harness.models.base import partial_mask
+
+    return partial_mask(info)
+
+
 # ---------------------------------------------------------------------------- checks
-def check_output_contract(model, info: InfoSet, targets: Targets) -> None:
-    """Draws have dims (draw, variable, horizon), the target coordinates, float64 and no NaN."""
-    out = _run(model, info, targets)
-    assert isinstance(out, xr.DataArray), f"forecast returned {type(out).__name__}, expected DataArray"
-    assert out.dims == ("draw", "variable", "horizon"), f"dims {out.dims}"
-    assert out.shape == (_DRAWS, len(targets.variables), len(targets.horizons)), f"shape {out.shape}"
-    assert list(out["variable"].values) == list(targets.variables), "variable coordinate"
-    assert [int(h) for h in out["horizon"].values] == list(targets.horizons), "horizon coordinate"
-    assert out.dtype == np.float64, f"dtype {out.dtype}"
-    assert np.isfinite(out.values).all(), "non-finite draws"
-
-
 def check_attributes(model, info: InfoSet, targets: Targets) -> None:
     """The model has string ``name``/``version``, and its constructor stores ``params()`` unchanged."""
     assert isinstance(getattr(model, "name", None), str) and model.name, "missing name"
@@ -162,6 +205,11 @@ def check_attributes(model, info: InfoSet, targets: Targets) -> None:
         assert getattr(twin, k) is v, f"the constructor does not store parameter {k!r} unchanged"
     assert not [k for k in vars(twin) if k.endswith("_") and not k.startswith("_")], \
         "the constructor sets learned state (attributes ending in '_')"
+
+
+def check_output_contract(model, info: InfoSet, targets: Targets) -> None:
+    """Draws satisfy the output contract: dims, target coordinates, draw count, float64, finite."""
+    validate_forecast(_run(model, info, targets), targets, _DRAWS, model=model)
 
 
 def check_seed_determinism(model, info: InfoSet, targets: Targets) -> None:
@@ -203,9 +251,10 @@ def check_reads_only_infoset(model, info: InfoSet, targets: Targets) -> None:
     before = info.values().copy()
     ref = _run(model, info, targets).values
     np.testing.assert_array_equal(info.values(), before, err_msg="forecast modified the panel")
-    bare = xr.DataArray(info.values().copy(), dims=("period", "variable"),
-                        coords={"period": info.periods.copy(), "variable": list(info.variables)})
-    stripped = replace(info, panel=bare, partial=None,
+    bare = _panel_like(info, info.values().copy())
+    # partial flags are information (which cells are published), not provenance: they stay
+    flags = None if info.partial is None else _panel_like(info, _partial(info))
+    stripped = replace(info, panel=bare, partial=flags,
                        source_release={k: np.datetime64("NaT") for k in info.source_release})
     np.testing.assert_array_equal(_run(model, stripped, targets).values, ref)
 
@@ -218,8 +267,13 @@ def check_trailing_nan(model, info: InfoSet, targets: Targets) -> None:
     periods = pd.period_range(start=info.periods[0], periods=len(vals), freq=info.freq)
     panel = xr.DataArray(vals, dims=("period", "variable"),
                          coords={"period": periods, "variable": list(info.variables)})
+    flags = None
+    if info.partial is not None:
+        flags = xr.DataArray(np.concatenate([_partial(info), np.zeros((extra, vals.shape[1]), bool)]),
+                             dims=("period", "variable"),
+                             coords={"period": periods, "variable": list(info.variables)})
     current = max(info.current, periods[-1])
-    padded = replace(info, panel=panel, current=current)
+    padded = replace(info, panel=panel, current=current, partial=flags)
     shift = current.ordinal - info.current.ordinal
     moved = replace(targets, current=current,
                     horizons=tuple(int(h) - shift for h in targets.horizons))
@@ -230,23 +284,105 @@ def check_trailing_nan(model, info: InfoSet, targets: Targets) -> None:
     np.testing.assert_array_equal(out, ref)
 
 
-def check_observed_targets(model, info: InfoSet, targets: Targets) -> None:
-    """Targets already observed are returned as their observed value in every draw."""
+def _published(info: InfoSet, targets: Targets) -> list[tuple[int, int, float]]:
+    """``(target variable, horizon index, value)`` of every target already published in ``info``."""
     vals = info.values()
+    left_out = _partial(info)
     first = info.periods[0]
-    out = _run(model, info, targets)
-    found = 0
     shifts = getattr(info, "shifts", None) or {}
+    found = []
     for j, v in enumerate(targets.variables):
         col = info.variables.index(v)
         for k, h in enumerate(targets.horizons):
             # a realigned panel holds reference period p in the row labelled p + shift
             row = (targets.current + int(h)).ordinal + int(shifts.get(v, 0)) - first.ordinal
-            if 0 <= row < len(vals) and np.isfinite(vals[row, col]):
-                found += 1
-                got = out.values[:, j, k]
-                assert np.all(got == vals[row, col]), f"{v} at h={h}: observed value not reproduced"
+            if 0 <= row < len(vals) and np.isfinite(vals[row, col]) and not left_out[row, col]:
+                found.append((j, k, float(vals[row, col])))
+    return found
+
+
+def check_observed_targets(model, info: InfoSet, targets: Targets) -> None:
+    """Targets already published are returned as their published value in every draw."""
+    out = _run(model, info, targets)
+    found = _published(info, targets)
+    for j, k, value in found:
+        got = out.values[:, j, k]
+        assert np.all(got == value), (f"{targets.variables[j]} at h={targets.horizons[k]}: "
+                                      f"published value {value} not reproduced")
     assert found, "the check needs targets with an observed period"
+
+
+def check_partial_is_unobserved(model, info: InfoSet, targets: Targets) -> None:
+    """Flagging a published target cell as a partial quarter gives the draws of a missing cell."""
+    found = _published(info, targets)
+    if not found:
+        raise SkipCheck("no published target to flag as partial")
+    j, k, _ = found[0]
+    v = targets.variables[j]
+    col = info.variables.index(v)
+    shifts = getattr(info, "shifts", None) or {}
+    row = (targets.current + int(targets.horizons[k])).ordinal + int(shifts.get(v, 0)) \
+        - info.periods[0].ordinal
+    flags = _partial(info).copy()
+    flags[row, col] = True
+    flagged = replace(info, partial=_panel_like(info, flags))
+    vals = info.values().copy()
+    vals[row, col] = np.nan
+    missing = replace(info, panel=_panel_like(info, vals),
+                      partial=None if info.partial is None else _panel_like(info, _partial(info)))
+    a = _run(model, flagged, targets).values
+    b = _run(model, missing, targets).values
+    assert not np.all(a[:, j, k] == a[0, j, k]), (
+        f"{v} at h={targets.horizons[k]}: a partial quarter was returned as a published value")
+    np.testing.assert_array_equal(a, b, err_msg=f"flagging {v} at row {row} as partial differs "
+                                                f"from leaving it out")
+
+
+# slopes (per period) and levels of the deterministic paths, per variable (cycled)
+_SLOPES = (1.0, -1.5, 2.0, -0.5)
+_LEVELS = (10.0, 30.0, -20.0, 5.0)
+
+
+def check_deterministic_trend(model, info: InfoSet, targets: Targets,
+                              exact_path: str | None = "linear") -> None:
+    """On a noise-free deterministic path the draws centre on its continuation at each target period."""
+    if exact_path is None:
+        raise SkipCheck("the case declares no deterministic path the model continues exactly")
+    if exact_path not in EXACT_PATHS:
+        raise ValueError(f"exact_path must be one of {sorted(EXACT_PATHS)} or None, "
+                         f"got {exact_path!r}")
+    n = len(info.variables)
+    slope = np.array([_SLOPES[j % len(_SLOPES)] for j in range(n)])
+    if exact_path == "constant":
+        slope = np.zeros(n)
+    level = np.array([_LEVELS[j % len(_LEVELS)] for j in range(n)])
+    shifts = getattr(info, "shifts", None) or {}
+    shift = np.array([int(shifts.get(v, 0)) for v in info.variables])
+    p0 = info.periods[0].ordinal
+    ref_period = np.asarray(info.periods.asi8)[:, None] - shift[None, :]  # reference period of each cell
+    path = level[None, :] + slope[None, :] * (ref_period - p0)
+    vals = np.where(np.isfinite(info.values()), path, np.nan)
+    trend = replace(info, panel=_panel_like(info, vals),
+                    partial=None if info.partial is None else _panel_like(info, _partial(info)))
+    out = _run(model, trend, targets).values
+    centre = np.median(out, axis=0)
+    # tolerance: a tenth of the variable's step per period on the linear path (so a model one
+    # horizon off misses by ten tolerances); the constant path uses the same absolute tolerance
+    unit = np.abs(np.array([_SLOPES[j % len(_SLOPES)] for j in range(n)]))
+    problems = []
+    for j, v in enumerate(targets.variables):
+        col = info.variables.index(v)
+        for k, h in enumerate(targets.horizons):
+            p = (targets.current + int(h)).ordinal
+            want = level[col] + slope[col] * (p - p0)
+            tol = 0.1 * unit[col]
+            err = centre[j, k] - want
+            if not abs(err) <= tol:
+                off = f" = {err / slope[col]:+.2f} periods of the path" if slope[col] else ""
+                problems.append(f"{v} at h={int(h)} ({targets.current + int(h)}): median draw "
+                                f"{centre[j, k]:.4g}, the {exact_path} path continues at "
+                                f"{want:.4g} (off by {err:+.3g}{off}; tolerance {tol:.3g})")
+    assert not problems, "; ".join(problems)
 
 
 def check_insufficient_data(model, info: InfoSet, targets: Targets) -> None:
@@ -271,40 +407,186 @@ _CHECKS: tuple[Callable[..., None], ...] = (
     check_reads_only_infoset,
     check_trailing_nan,
     check_observed_targets,
+    check_partial_is_unobserved,
+    check_deterministic_trend,
     check_insufficient_data,
 )
 
 
 def model_checks() -> Iterator[Callable[..., None]]:
-    """The check functions, each called as ``check(model, info, targets)``."""
+    """The check functions, each called as ``check(model, info, targets)``.
+
+    :func:`check_deterministic_trend` also takes ``exact_path=`` (default ``"linear"``). A
+    check raises ``AssertionError`` (or any exception) on failure and :class:`SkipCheck` when
+    it does not apply.
+    """
     yield from _CHECKS
 
 
-def check_model(model, info: InfoSet | None = None, targets: Targets | None = None) -> None:
-    """Run every conformance check against ``model``.
+# ---------------------------------------------------------------------------- the report
+Status = Literal["passed", "failed", "skipped"]
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """One check's outcome.
+
+    Attributes
+    ----------
+    name : str
+        The check function's name.
+    status : {"passed", "failed", "skipped"}
+    message : str
+        Why it failed (``ExceptionType: message``) or was skipped; empty when it passed.
+    doc : str
+        What the check verifies (its docstring's first line).
+    seconds : float
+        Time taken.
+    """
+
+    name: str
+    status: Status
+    message: str = ""
+    doc: str = ""
+    seconds: float = 0.0
+
+    @property
+    def passed(self) -> bool:
+        return self.status == "passed"
+
+    def __str__(self) -> str:
+        tag = {"passed": "pass", "failed": "FAIL", "skipped": "skip"}[self.status]
+        return f"{tag}  {self.name}: {self.message}" if self.message else f"{tag}  {self.name}"
+
+
+@dataclass(frozen=True)
+class CheckReport:
+    """What :func:`check_model` found: every check, passed, failed or skipped, and why.
+
+    Attributes
+    ----------
+    model : str
+        The model's name.
+    case : str or None
+        The check case's id, when run from a :class:`CheckCase`.
+    results : tuple of CheckResult
+        In the order the checks ran.
+    """
+
+    model: str
+    case: str | None
+    results: tuple[CheckResult, ...]
+
+    @property
+    def ok(self) -> bool:
+        """True when no check failed (skipped checks do not count against the model)."""
+        return not self.failed
+
+    @property
+    def failed(self) -> list[CheckResult]:
+        return [r for r in self.results if r.status == "failed"]
+
+    @property
+    def skipped(self) -> list[CheckResult]:
+        return [r for r in self.results if r.status == "skipped"]
+
+    def __getitem__(self, name: str) -> CheckResult:
+        for r in self.results:
+            if r.name == name:
+                return r
+        raise KeyError(f"no check named {name!r}; checks run: {[r.name for r in self.results]}")
+
+    def _title(self) -> str:
+        case = f" (case {self.case!r})" if self.case and self.case != self.model else ""
+        counts = {s: sum(r.status == s for r in self.results) for s in ("passed", "failed", "skipped")}
+        return (f"model {self.model!r}{case}: {counts['passed']} passed, {counts['failed']} failed, "
+                f"{counts['skipped']} skipped")
+
+    def __str__(self) -> str:
+        return "\n".join([self._title()] + [f"  {r}" for r in self.results])
+
+    def raise_if_failed(self) -> CheckReport:
+        """Raise ``AssertionError`` listing every failed check; return the report otherwise."""
+        if self.failed:
+            case = f" (case {self.case!r})" if self.case and self.case != self.model else ""
+            raise AssertionError(f"model {self.model!r}{case} failed {len(self.failed)} check(s):\n  "
+                                 + "\n  ".join(f"{r.name}: {r.message}" for r in self.failed))
+        return self
+
+
+def check_model(model, info: InfoSet | None = None, targets: Targets | None = None, *,
+                exact_path: str | None = "linear", strict: bool = False,
+                checks: Iterable[Callable[..., None]] | None = None) -> CheckReport:
+    """Run every conformance check against ``model`` and report each outcome.
 
     Parameters
     ----------
-    model : ForecastModel
-        The model (unfitted; it is forecast several times).
+    model : ForecastModel or CheckCase
+        The model (unfitted; it is forecast several times), or a :class:`CheckCase`, whose
+        model, information set, targets and ``exact_path`` are then used.
     info : InfoSet, optional
-        The information set to use; default a simulated 3-variable, 80-quarter panel with a
-        ragged last row.
+        The information set; default :func:`default_case`'s simulated panel.
     targets : Targets, optional
         Default: the first two variables at horizons ``(-1, 0, 1, 4)``.
+    exact_path : {"linear", "constant"} or None, default "linear"
+        The deterministic path of :func:`check_deterministic_trend` (None skips it).
+    strict : bool, default False
+        Raise ``AssertionError`` when a check fails (same as ``.raise_if_failed()``).
+    checks : iterable of callables, optional
+        Run only these (default all of :func:`model_checks`).
+
+    Returns
+    -------
+    CheckReport
+        ``print(report)`` lists each check; ``report.ok`` is True when none failed.
 
     Raises
     ------
     AssertionError
-        Listing every failed check with its message.
+        With ``strict=True``, listing every failed check with its message.
     """
-    info, targets = _default_case(info, targets)
-    failures = []
-    for check in _CHECKS:
+    case_id = None
+    if isinstance(model, CheckCase):
+        if info is not None or targets is not None:
+            raise TypeError("check_model: pass either a CheckCase or info/targets, not both")
+        case_id, exact_path = model.id, model.exact_path
+        model, info, targets = model.model, model.info, model.targets
+    info, targets = default_case(info, targets)
+    results = []
+    for check in (_CHECKS if checks is None else tuple(checks)):
+        fn = functools.partial(check, exact_path=exact_path) \
+            if check is check_deterministic_trend else check
+        doc = (check.__doc__ or "").strip().splitlines()[0] if check.__doc__ else ""
+        t0 = time.perf_counter()
         try:
-            check(model, info, targets)
+            fn(model, info, targets)
+        except SkipCheck as exc:
+            results.append(CheckResult(check.__name__, "skipped", str(exc), doc,
+                                       time.perf_counter() - t0))
         except Exception as exc:  # report every failure, not just the first
-            failures.append(f"{check.__name__}: {type(exc).__name__}: {exc}")
-    if failures:
-        raise AssertionError(f"model {getattr(model, 'name', model)!r} failed "
-                             f"{len(failures)} check(s):\n  " + "\n  ".join(failures))
+            msg = str(exc).strip().replace("\n", " ")
+            results.append(CheckResult(check.__name__, "failed", f"{type(exc).__name__}: {msg}",
+                                       doc, time.perf_counter() - t0))
+        else:
+            results.append(CheckResult(check.__name__, "passed", "", doc, time.perf_counter() - t0))
+    report = CheckReport(model_label(model), case_id, tuple(results))
+    return report.raise_if_failed() if strict else report
+
+
+def registered_cases(extra: Iterable[str | type] = ()) -> list[tuple[str, CheckCase]]:
+    """``(test id, CheckCase)`` for every case of every registered model, plus ``extra`` classes.
+
+    The model contract test parametrizes over this (like scikit-learn's
+    ``parametrize_with_checks``), so a newly registered model is checked without editing the
+    test. ``extra`` names further classes (``package.module:Class`` paths or classes), e.g. the
+    models of :mod:`harness.contrib`.
+    """
+    from harness.models.base import available_models, get_model_class
+
+    out = []
+    for ref in [*available_models(), *extra]:
+        cls = get_model_class(ref)
+        label = ref if isinstance(ref, str) else f"{cls.__module__}:{cls.__qualname__}"
+        for case in check_cases_of(cls):
+            out.append((label if case.id == label else f"{label}[{case.id}]", case))
+    return out

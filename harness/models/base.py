@@ -1,16 +1,50 @@
-"""The model protocol, the registry of model classes, and conveniences shared by the built-ins.
+"""The model protocol, the registry of model classes, and the building blocks of a model.
 
 A model is any object with a ``name``, a ``version``, ``params()`` and
 ``forecast(info, targets, n_draws, rng) -> xarray.DataArray`` (dims ``draw, variable, horizon``).
 :class:`ForecastModel` states this as a :class:`typing.Protocol`; :class:`BaseModel` is an optional
-base class that derives ``params()`` from the constructor's signature and offers the helpers the
-built-in models share (input checks, the target layout, the output array).
+base class that derives ``params()`` from the constructor's signature and runs the forecast
+template the built-in models share. ``docs/model_template.py`` is a complete, checked example.
 
 Laws every model obeys (checked by :func:`harness.testing.check_model`):
 
 * the draws depend only on the information set and on the generator passed in;
-* a target already observed in the information set is returned as its observed value in every draw;
-* ``type(model)(**model.params())`` forecasts exactly like ``model``.
+* a target already published in the information set is returned as its published value in
+  every draw; a *partial* quarter (``InfoSet.partial``: a monthly indicator's quarter known for
+  only one or two of its months) is not a published value: it is left out (see below);
+* ``type(model)(**model.params())`` forecasts exactly like ``model``;
+* the forecast satisfies the output contract (:func:`harness.models.contract.validate_forecast`).
+
+Building blocks for your own model
+----------------------------------
+:class:`TargetLayout`
+    ``TargetLayout.build(name, info, targets, n_draws, rng)`` validates a forecast call and
+    locates every target: the panel as an array (``values``, partial quarters left out), which
+    targets are already published (``observed``, ``observed_values``), the steps of each target
+    after an anchor (:meth:`TargetLayout.steps`) or after each variable's own last observation
+    (:meth:`TargetLayout.own_runs`).
+:func:`output_array`
+    Wraps ``(draw, variable, horizon)`` draws as the DataArray the runner expects, filling the
+    published targets with their value and validating the result.
+:func:`trailing_run`, :func:`lag_design`, :func:`per_variable`, :func:`ar1_scales`
+    Small sample helpers (the last contiguous stretch of observations, a VAR design matrix, a
+    scalar-or-per-variable hyperparameter, AR(1) residual scales).
+
+A :class:`BaseModel` subclass implements only ``draw(layout, rng)``; :meth:`BaseModel.forecast`
+does ``validate() -> TargetLayout.build -> draw -> output_array``.
+
+Partial quarters are left out
+-----------------------------
+When a monthly indicator enters a quarterly panel with ``partial="keep"``, its current quarter
+may rest on one or two months; ``InfoSet.partial`` flags such cells. :class:`TargetLayout`
+treats a flagged cell as *unobserved*: it is NaN in ``layout.values`` (so no model estimates on
+it or conditions a ragged edge on it), it is not a published target (so the quarter is
+forecast, not returned as a point mass at the partial mean), and ``layout.left_out`` records
+where it was. :func:`harness.testing.check_model` checks this as a law (flagging a cell
+partial gives the draws of deleting it). A model that wants the months already known should
+use them where they are what they are, single months: the native-frequency information set
+(monthly indicators on their own axis, ``infoset_layout = "native"``), not a quarterly mean of
+fewer months.
 """
 
 from __future__ import annotations
@@ -23,6 +57,14 @@ from typing import Any, ClassVar, Literal, Protocol, runtime_checkable
 import numpy as np
 import xarray as xr
 
+from harness.errors import TaskOutputError
+from harness.models.contract import (
+    DIMS,
+    CheckCase,
+    default_cases,
+    model_label,
+    validate_forecast,
+)
 from harness.models.errors import (
     InsufficientDataError,
     ModelError,
@@ -33,25 +75,37 @@ from vintages import InfoSet, Targets
 
 __all__ = [
     "BaseModel",
+    "CheckCase",
     "Density",
     "ForecastModel",
     "InsufficientDataError",
+    "LAYOUT_VERSION",
     "ModelError",
     "ModelParameterError",
     "MeanKind",
     "ShockKind",
     "TargetLayout",
     "UnknownModelError",
+    "ar1_scales",
     "available_models",
     "get_model_class",
+    "lag_design",
     "make_model",
+    "output_array",
+    "partial_mask",
+    "per_variable",
     "register",
+    "trailing_run",
 ]
+
+#: version of the shared forecast template's semantics (:class:`TargetLayout`,
+#: :func:`output_array`); bump it when they change what a model sees or returns, so caches keyed
+#: on model code can include it. "2": partial quarters are left out.
+LAYOUT_VERSION = "2"
 
 Density = Literal["gaussian", "empirical"]
 MeanKind = Literal["zero", "sample"]
 ShockKind = Literal["gaussian", "student"]
-DIMS: tuple[str, str, str] = ("draw", "variable", "horizon")
 
 
 @runtime_checkable
@@ -238,6 +292,24 @@ class BaseModel:
     def check_params(cls, params: dict[str, Any], model: str) -> None:
         """Rules that involve several parameters; raise :class:`ModelParameterError`."""
 
+    @classmethod
+    def check_cases(cls) -> list[CheckCase]:
+        """The configurations the conformance suite checks (default: the default instance).
+
+        Override to check several configurations, to supply an information set the model
+        needs (a class with ``infoset_layout = "native"`` must), or to state which
+        deterministic path the model continues exactly (``CheckCase.exact_path``)::
+
+            @classmethod
+            def check_cases(cls):
+                return [CheckCase("drift", cls(mean="sample")),
+                        CheckCase("no_drift", cls(), exact_path="constant")]
+
+        ``tests/harness/models/test_models_contract.py`` runs every case of every registered
+        model through :func:`harness.testing.check_model`.
+        """
+        return default_cases(cls)
+
     def params(self) -> dict[str, Any]:
         """The constructor arguments, as stored (JSON-able for the built-in models)."""
         return {k: getattr(self, k) for k in self._param_names()}
@@ -315,6 +387,21 @@ class TargetLayout:
         True where the target period already has a value in the panel.
     observed_values : ndarray (n_target_vars, n_horizons)
         Those values (NaN elsewhere).
+    n_draws : int
+    model : str
+        The model's name, for messages.
+    left_out : ndarray (T, n) bool
+        Cells the panel has a value for that the layout treats as unobserved: partial quarters
+        (``info.partial``). They are NaN in ``values`` and never ``observed``.
+
+    Examples
+    --------
+    Inside a model's ``draw`` (or its own ``forecast``)::
+
+        lay = TargetLayout.build(self.name, info, targets, n_draws, rng)
+        runs, steps = lay.own_runs()   # per target variable: its last stretch, steps to forecast
+        ...                            # fill draws[:, j, k] where steps[j, k] > 0
+        return output_array(draws, lay, self)
     """
 
     variables: list[str]
@@ -328,11 +415,16 @@ class TargetLayout:
     observed_values: np.ndarray
     n_draws: int
     model: str
+    left_out: np.ndarray
 
     @classmethod
     def build(cls, model: str, info: InfoSet, targets: Targets, n_draws: int,
               rng: np.random.Generator) -> TargetLayout:
-        """Validate the call and locate every target; errors say what was expected and got."""
+        """Validate the call and locate every target; errors say what was expected and got.
+
+        Cells flagged in ``info.partial`` are left out: NaN in ``values``, never ``observed``,
+        recorded in ``left_out``.
+        """
         if not isinstance(rng, np.random.Generator):
             raise TypeError(f"model {model!r}: rng must be a numpy.random.Generator, "
                             f"got {type(rng).__name__}")
@@ -356,6 +448,10 @@ class TargetLayout:
         if len(ordinals) > 1 and not np.all(np.diff(ordinals) == 1):
             raise ValueError(f"model {model!r}: the panel's periods must be consecutive, got "
                              f"{list(info.periods.astype(str))[:5]}...")
+        left_out = partial_mask(info) & np.isfinite(values)
+        if left_out.any():
+            # a copy: the information set itself is never modified
+            values = np.where(left_out, np.nan, values)
         columns = np.array([variables.index(v) for v in targets.variables], dtype=np.int64)
         shifts = getattr(info, "shifts", None) or {}
         shift = np.array([int(shifts.get(v, 0)) for v in targets.variables], dtype=np.int64)
@@ -367,8 +463,10 @@ class TargetLayout:
         jj, kk = np.nonzero(inside)
         obs_vals[jj, kk] = values[rows[jj, kk], columns[jj]]
         observed = np.isfinite(obs_vals)
-        return cls(variables, values, ordinals, info.periods, targets, columns, tord, observed,
-                   obs_vals, int(n_draws), model)
+        return cls(variables=variables, values=values, ordinals=ordinals, periods=info.periods,
+                   targets=targets, columns=columns, target_ordinals=tord, observed=observed,
+                   observed_values=obs_vals, n_draws=int(n_draws), model=model,
+                   left_out=left_out)
 
     def own_runs(self) -> tuple[list[tuple[int, int]], np.ndarray]:
         """Per target variable, its trailing run of observations and the steps of each target.
@@ -400,24 +498,59 @@ class TargetLayout:
         return np.where(self.observed, 0, s)
 
 
+def partial_mask(info: InfoSet) -> np.ndarray:
+    """``(T, n)`` bool: the cells ``info.partial`` flags, aligned on the panel (False without flags)."""
+    shape = (len(info.periods), len(info.variables))
+    part = getattr(info, "partial", None)
+    if part is None:
+        return np.zeros(shape, dtype=bool)
+    part = part.transpose("period", "variable")
+    same = (part.shape == shape and list(map(str, part["variable"].values)) == info.variables
+            and part.indexes["period"].equals(info.periods))
+    if not same:
+        part = part.reindex(period=info.periods, variable=info.variables, fill_value=False)
+    return np.asarray(part.values, dtype=bool)
+
+
 def output_array(draws: np.ndarray, layout: TargetLayout, model: Any) -> xr.DataArray:
-    """Fill observed targets (degenerate) and wrap ``(draw, variable, horizon)`` draws as xarray."""
+    """The forecast DataArray: published targets filled in, the output contract checked.
+
+    Parameters
+    ----------
+    draws : ndarray (n_draws, n_target_variables, n_horizons)
+        The model's draws in the order of ``layout.targets``; cells of published targets
+        (``layout.observed``) may hold anything (they are overwritten with the published value).
+    layout : TargetLayout
+    model : ForecastModel
+        Its ``name`` and ``version`` go to the array's attributes and to error messages.
+
+    Returns
+    -------
+    xarray.DataArray
+        Dims ``(draw, variable, horizon)``, coordinates from ``layout.targets``, float64.
+
+    Raises
+    ------
+    TaskOutputError
+        If the shape is wrong or a draw is not finite (a model must raise
+        :class:`InsufficientDataError` rather than return NaN); see
+        :func:`harness.models.contract.validate_forecast`.
+    """
     out = np.array(draws, dtype=np.float64, copy=True)
+    expected = (layout.n_draws, *layout.observed.shape)
+    if out.shape != expected:
+        raise TaskOutputError(f"model {model_label(model)!r}: draws have shape {out.shape}, "
+                              f"expected {expected} (draws, target variables, horizons)")
     j, k = np.nonzero(layout.observed)
     out[:, j, k] = layout.observed_values[j, k]
-    if not np.isfinite(out).all():
-        # a model must raise rather than return NaN; reaching here is a bug worth a clear message
-        bad = np.argwhere(~np.isfinite(out))[0]
-        raise FloatingPointError(f"model {layout.model!r} produced a non-finite draw for "
-                                 f"{layout.targets.variables[bad[1]]!r} at horizon "
-                                 f"{layout.targets.horizons[bad[2]]}")
-    return xr.DataArray(
+    da = xr.DataArray(
         out, dims=DIMS,
         coords={"draw": np.arange(out.shape[0]), "variable": list(layout.targets.variables),
                 "horizon": [int(h) for h in layout.targets.horizons]},
         attrs={"model": str(getattr(model, "name", type(model).__name__)),
                "model_version": str(getattr(model, "version", ""))},
     )
+    return validate_forecast(da, layout.targets, layout.n_draws, model=model)
 
 
 # ---------------------------------------------------------------------------- sample helpers

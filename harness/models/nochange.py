@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from harness.models.base import BaseModel, TargetLayout, register
+from harness.models.base import BaseModel, CheckCase, TargetLayout, register
 from harness.models.params import Boolean, Options
 
 __all__ = ["NoChange"]
@@ -62,6 +62,14 @@ class NoChange(BaseModel):
         self.level = level
         self.mean = mean
         self.density = density
+
+    @classmethod
+    def check_cases(cls) -> list[CheckCase]:
+        """Without drift the forecast is the last level (or zero change): only a constant is exact."""
+        return [CheckCase("nochange", cls(), exact_path="constant"),
+                CheckCase("drift", cls(mean="sample"), exact_path="linear"),
+                CheckCase("growth_sample_empirical", cls(level=False, mean="sample",
+                                                         density="empirical"), exact_path="constant")]
 
     def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
         """Predictive draws ``(draw, variable, horizon)``; see the class docstring."""
