@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from harness.backtest.ledger import failure_path, task_path
+from harness.models.base import LAYOUT_VERSION
 from harness.spec import Spec
 
 
@@ -112,19 +113,47 @@ def _model_code_hash(cls) -> str:
     return _CODE_HASHES[name]
 
 
+def _partial_hash(info) -> str:
+    part = getattr(info, "partial", None)
+    if part is None:
+        return ""
+    return hashlib.sha256(np.ascontiguousarray(np.asarray(part.values, dtype=bool)).tobytes()).hexdigest()[:16]
+
+
+#: version of the task key's recipe; bumped whenever what a key hashes (or the seed mapping) changes
+KEY_VERSION = 2
+#: origins are counted in days from here in the seed key (a spawn key must be non-negative;
+#: real-time data sets commonly start in the 1960s, so days since 1970 would not do)
+_SEED_EPOCH = np.datetime64("1800-01-01", "D")
+
+
 def seed_key(model: str, origin: np.datetime64) -> tuple[int, int]:
-    """The stable spawn key of a (model label, origin) pair."""
-    return (zlib.crc32(model.encode()), int(np.datetime64(origin, "D").astype(np.int64)))
+    """The stable spawn key of a (model label, origin) pair: (crc32 of the label, days since 1800-01-01).
+
+    Raises
+    ------
+    ValueError
+        For an origin before 1800-01-01 (no store holds such data; periods start in 1800).
+    """
+    days = int((np.datetime64(origin, "D") - _SEED_EPOCH).astype(np.int64))
+    if days < 0:
+        raise ValueError(f"origin {origin} lies before {_SEED_EPOCH}; origins start in 1800")
+    return (zlib.crc32(model.encode()), days)
 
 
 def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
     payload = {
+        "key_version": KEY_VERSION,
         "type": model_spec.type,
         "class": f"{model_cls.__module__}:{model_cls.__qualname__}",
         "params": model_spec.params,
         "version": str(getattr(model_cls, "version", "0")),
         "code": _model_code_hash(model_cls),
         "data": info.data_hash(),
+        # how a layout reads the panel (partial quarters left out since layout 2) and which
+        # cells are flagged partial: both change what a model sees
+        "layout": LAYOUT_VERSION,
+        "partial": _partial_hash(info),
         "policy": info.policy,
         "transforms": info.transforms,
         "targets": [list(targets.variables), list(targets.horizons), str(targets.current)],

@@ -152,7 +152,8 @@ def _fast(name):
 @pytest.mark.parametrize("name", available_models())
 def test_demo_partial_quarter_nowcast_is_a_forecast_not_the_partial_mean(demo_cube, name):
     """At 2012-03-20 the demo's ip 2012Q1 rests on January only: every model forecasts it."""
-    from harness.scoring import DEFAULT_DENSITY_FLOOR, log_score
+    from harness.scores import DEFAULT_DENSITY_FLOOR, log_score
+
     from vintages import build_infoset, truth_values
     from vintages import make_targets as targets_for
 
