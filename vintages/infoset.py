@@ -107,6 +107,10 @@ class InfoSet:
     native_last : dict[str, pandas.Period]
         Per variable, the last observed reference period in its own frequency, before
         conversion and shifting (for a monthly variable: the last month known).
+    native_freq : dict[str, str]
+        Per variable, its own frequency (``"M"`` or ``"Q"``) in a native-frequency information
+        set (``freq == "M"``: monthly variables stay monthly, a quarterly variable sits at its
+        quarter's last month, NaN in the other two). Empty for the quarterly form.
     """
 
     origin: np.datetime64
@@ -123,6 +127,7 @@ class InfoSet:
     conversions: dict[str, str] = field(default_factory=dict)
     input_release: dict[str, np.datetime64] = field(default_factory=dict)
     native_last: dict[str, pd.Period] = field(default_factory=dict)
+    native_freq: dict[str, str] = field(default_factory=dict)
 
     @property
     def variables(self) -> list[str]:

@@ -18,6 +18,7 @@ from harness.models.base import (
 )
 from harness.models.bvar import BayesianVAR
 from harness.models.bvar_sv import BayesianVARSV
+from harness.models.dfm import DynamicFactorModel  # noqa: F401  (registers "dfm")
 from harness.models.errors import (
     InsufficientDataError,
     ModelError,
