@@ -28,7 +28,7 @@ import xarray as xr
 from harness.models.errors import InsufficientDataError
 from vintages import InfoSet, Targets
 
-__all__ = ["NativeLayout", "make_native_infoset", "native_targets"]
+__all__ = ["NativeLayout", "make_native_infoset", "native_targets", "simulated_native_panel"]
 
 
 def make_native_infoset(monthly: np.ndarray, quarterly: np.ndarray,
@@ -94,6 +94,54 @@ def make_native_infoset(monthly: np.ndarray, quarterly: np.ndarray,
     return InfoSet(origin=origin_day, freq="M", panel=panel, current=current, last_observed=last,
                    source_release=src, policy="keep", transforms={v: "none" for v in names},
                    native_last=native_last, native_freq={str(k): f for k, f in freq.items()})
+
+
+def simulated_native_panel(n_months: int = 360, n_monthly: int = 20, seed: int = 0,
+                           ragged: bool = True) -> tuple[np.ndarray, np.ndarray]:
+    """An invented Veldmark panel: monthly indicators and quarterly output growth, one factor.
+
+    The factor follows ``f_t = 0.6 f_{t-1} + 0.2 f_{t-2} + u_t``; indicator ``i`` is
+    ``c_i + lambda_i f_t + e_it`` with AR(1) ``e_it`` (``rho_i`` in [-0.2, 0.7]); quarterly output
+    growth is the Mariano-Murasawa aggregate of ``0.5 f_t + e^Q_t`` plus 1, observed at each
+    quarter's last month. With ``ragged``, indicator ``i`` ends ``i mod 3`` months early and the
+    last quarter of output is unpublished (a ragged edge).
+
+    Returns
+    -------
+    monthly : ndarray (n_months, n_monthly)
+    quarterly : ndarray (n_months, 1)
+        NaN except at quarters' last months (the panel starts at a quarter's first month).
+    """
+    rng = np.random.default_rng(seed)
+    t = n_months
+    f = np.zeros(t + 24)
+    u = rng.standard_normal(t + 24)
+    for s in range(2, t + 24):
+        f[s] = 0.6 * f[s - 1] + 0.2 * f[s - 2] + u[s]
+    f = f[24:]
+    lam = rng.uniform(0.3, 1.0, n_monthly)
+    rho = rng.uniform(-0.2, 0.7, n_monthly)
+    e = np.zeros((t, n_monthly))
+    eps = rng.standard_normal((t, n_monthly)) * 0.8
+    for s in range(1, t):
+        e[s] = rho * e[s - 1] + eps[s]
+    monthly = f[:, None] * lam + e + rng.uniform(-1, 1, n_monthly)
+    eq = np.zeros(t)
+    epq = 0.3 * rng.standard_normal(t)
+    for s in range(1, t):
+        eq[s] = 0.3 * eq[s - 1] + epq[s]
+    latent = 0.5 * f + eq
+    quarterly = np.full((t, 1), np.nan)
+    for s in range(4, t):
+        if s % 3 == 2:
+            quarterly[s, 0] = latent[s] + 2 * latent[s - 1] + 3 * latent[s - 2] + 2 * latent[s - 3] \
+                + latent[s - 4] + 1.0
+    if ragged:
+        for i in range(n_monthly):
+            if i % 3:
+                monthly[t - (i % 3):, i] = np.nan
+        quarterly[t - 3:] = np.nan
+    return monthly, quarterly
 
 
 def native_targets(info: InfoSet, variables: list[str] | tuple[str, ...],
