@@ -141,8 +141,15 @@ class BridgeEquations(BaseModel):
         d = lay.n_draws
         t_end = int(lay.target_rows.max())
         horizon = max(t_end + 1, nt)
-        # -- indicators: published months plus simulated unpublished ones, (D, horizon, k)
-        paths = np.empty((d, horizon, len(mon)))
+        # rows of quarters' last months (months 3, 6, 9, 12)
+        q_rows = np.arange((3 - lay.periods[0].month % 3) % 3, horizon, 3)
+        todo = [self._todo(y[:, col], lay.target_rows[jt], q_rows, p["target_lags"])
+                for jt, col in enumerate(lay.columns)]
+        rows = [q_rows[i] for t in todo for i in t]
+        # simulated paths are kept from the first month an aggregate to draw needs
+        s0 = max(0, min(rows) - 4) if rows else horizon
+        # -- indicators: published months plus simulated unpublished ones, (D, horizon - s0, k)
+        paths = np.empty((d, horizon - s0, len(mon)))
         ar = AutoRegression(max_lags=p["max_lags"], ic="bic",
                             param_uncertainty=p["param_uncertainty"])
         need = 2 * p["max_lags"] + 3
@@ -160,21 +167,41 @@ class BridgeEquations(BaseModel):
                     f"model {self.name!r}: indicator {nm!r} has {len(run)} consecutive "
                     f"observation(s) at origin {lay.origin}; max_lags={p['max_lags']} needs "
                     f"{need}")
-            paths[:, : last + 1, j] = series[None, : last + 1]
+            if last >= s0:
+                paths[:, : last + 1 - s0, j] = series[None, s0: last + 1]
             steps = horizon - last - 1
-            if steps > 0:
-                paths[:, last + 1:, j] = ar._paths(ar.fit_series(run, nm), steps, d, rng)
+            if steps > 0 and horizon > s0:
+                sim = ar._paths(ar.fit_series(run, nm), steps, d, rng)
+                keep = min(steps, horizon - s0)
+                paths[:, horizon - s0 - keep:, j] = sim[:, steps - keep:]
         pub = np.full((horizon, len(mon)), np.nan)
         pub[:nt] = y[:, mon]
-        # rows of quarters' last months (months 3, 6, 9, 12)
-        q_rows = np.arange((3 - lay.periods[0].month % 3) % 3, horizon, 3)
         out = np.zeros((d, *lay.target_rows.shape))
         self.equations_ = {}
         for jt, col in enumerate(lay.columns):
-            out[:, jt, :] = self._target(lay, y[:, col], paths, pub, q_rows, names, jt, p, rng)
+            out[:, jt, :] = self._target(lay, y[:, col], paths, s0, pub, q_rows, todo[jt], names,
+                                         jt, p, rng)
         return out
 
-    def _target(self, lay, target, paths, pub, q_rows, names, jt, p, rng) -> np.ndarray:
+    @staticmethod
+    def _todo(target, target_rows, q_rows, nlag) -> list[int]:
+        """Indices (into ``q_rows``) of the quarters to draw for one target, in order.
+
+        The unpublished target quarters; with target lags also every unpublished quarter
+        between the target's last published one and the last quarter wanted.
+        """
+        nt = len(target)
+        pub = np.isfinite(np.where(q_rows < nt, target[np.clip(q_rows, 0, nt - 1)], np.nan))
+        wanted = {int(r) for r in target_rows if not (r < nt and np.isfinite(target[r]))}
+        if not wanted:
+            return []
+        last_pub = int(q_rows[pub].max()) if pub.any() else -1
+        top = max(wanted)
+        return [i for i, r in enumerate(q_rows) if not pub[i] and r <= top
+                and (int(r) in wanted or (nlag > 0 and r > last_pub))]
+
+    def _target(self, lay, target, paths, s0, pub, q_rows, todo, names, jt, p,
+                rng) -> np.ndarray:
         """Draws ``(D, n_horizons)`` for one target variable."""
         nt = len(target)
         d = paths.shape[0]
@@ -214,22 +241,15 @@ class BridgeEquations(BaseModel):
         else:
             sigma2 = np.full(d, ssr / dof)
             betas = np.broadcast_to(beta, (d, k))
-        agg = aggregate_months(paths, q_rows, p["aggregate"])  # (D, Q, k_M)
         # target draws quarter by quarter, so unpublished lags enter through their own draws
         ydraw = np.broadcast_to(yq, (d, len(yq))).copy()
-        wanted = {int(r) for r in lay.target_rows[jt] if not np.isfinite(
-            target[r] if r < nt else np.nan)}
-        last_needed = max(wanted) if wanted else -1
-        for qi, row in enumerate(q_rows):
-            if row > last_needed:
-                break
-            if np.isfinite(yq[qi]) or (row not in wanted and nlag == 0):
-                continue
+        wanted = {int(r) for r in lay.target_rows[jt] if not (r < nt and np.isfinite(target[r]))}
+        agg = aggregate_months(paths, q_rows[todo] - s0, p["aggregate"]) if todo else None
+        for a_i, qi in enumerate(todo):
             lags = [ydraw[:, qi - lag] if qi - lag >= 0 else np.full(d, np.nan)
                     for lag in range(1, nlag + 1)]
-            xr_ = np.column_stack([np.ones(d), agg[:, qi, :], *lags]) if nlag else \
-                np.column_stack([np.ones(d), agg[:, qi, :]])
-            val = np.einsum("dk,dk->d", betas, xr_) + np.sqrt(sigma2) * rng.standard_normal(d)
+            xq = np.column_stack([np.ones(d), agg[:, a_i, :], *lags])
+            val = np.einsum("dk,dk->d", betas, xq) + np.sqrt(sigma2) * rng.standard_normal(d)
             ydraw[:, qi] = val
         out = np.zeros((d, lay.target_rows.shape[1]))
         for kk, row in enumerate(lay.target_rows[jt]):

@@ -234,7 +234,7 @@ class DynamicFactorModel(BaseModel):
         stop = min(nt, t_end + 1)
         if stop > tau:
             window[: stop - tau] = fit.x[tau:stop]
-        states, _ = simulation_smoother(window, ss, fo.a_pred[tau], fo.p_pred[tau], lay.n_draws, rng)
+        states, _ = simulation_smoother(window, ss, fo.a_pred[tau], fo.pred_cov(tau), lay.n_draws, rng)
         for j, k in zip(*np.nonzero(pending), strict=True):
             col = lay.columns[j]
             sig = ss.Z[col] @ states[lay.target_rows[j, k] - tau]  # (D,)
@@ -251,6 +251,6 @@ class DynamicFactorModel(BaseModel):
         tau = min(row, nt)
         window = np.full((row - tau + 1, fit.x.shape[1]), np.nan)
         window[: max(0, min(nt, row + 1) - tau)] = fit.x[tau:min(nt, row + 1)]
-        _, mean = simulation_smoother(window, ss, fo.a_pred[tau], fo.p_pred[tau], 1,
+        _, mean = simulation_smoother(window, ss, fo.a_pred[tau], fo.pred_cov(tau), 1,
                                       np.random.default_rng(0))
         return float(fit.mean[col] + fit.scale[col] * (ss.Z[col] @ mean[-1]))

@@ -181,29 +181,35 @@ def _monthly_ar_steps(xm, om, mom, eb, r, es, lam, rho, update):
     o = om.astype(float)
     oc, op = o[1:], o[:-1]
     xc, xp = xm[1:], xm[:-1]
+    nm = xm.shape[1]
+    rr = r * r
+
+    def tsum(w, m3):  # sum_t w[t, i] m3[t] for every series i, as one matrix product
+        return (w.T @ m3.reshape(len(m3), -1)).reshape(nm, *m3.shape[1:])
+
     if update:
         sym = eff1[1:] + np.swapaxes(eff1[1:], 1, 2)
-        a = (np.einsum("ti,tkl->ikl", oc, eff[1:])
-             + (rho * rho)[:, None, None] * np.einsum("ti,tkl->ikl", op, ef1f1[1:])
-             - rho[:, None, None] * np.einsum("ti,tkl->ikl", oc * op, sym))
-        b = (np.einsum("ti,tk->ik", oc * xc, mf[1:])
-             - rho[:, None] * (np.einsum("ti,tk->ik", oc * op * xp, mf[1:])
-                               + np.einsum("ti,tik->ik", oc * (1 - op), efe1))
-             - rho[:, None] * (np.einsum("ti,tk->ik", op * oc * xc, mf1[1:])
-                               + np.einsum("ti,tik->ik", op * (1 - oc), eef1[1:]))
-             + (rho * rho)[:, None] * np.einsum("ti,tk->ik", op * xp, mf1[1:]))
+        a = (tsum(oc, eff[1:]) + (rho * rho)[:, None, None] * tsum(op, ef1f1[1:])
+             - rho[:, None, None] * tsum(oc * op, sym))
+        b = (tsum(oc * xc, mf[1:])
+             - rho[:, None] * (tsum(oc * op * xp, mf[1:])
+                               + ((oc * (1 - op))[:, :, None] * efe1).sum(axis=0))
+             - rho[:, None] * (tsum(op * oc * xc, mf1[1:])
+                               + ((op * (1 - oc))[:, :, None] * eef1[1:]).sum(axis=0))
+             + (rho * rho)[:, None] * tsum(op * xp, mf1[1:]))
         try:
             lam = np.linalg.solve(a, b[:, :, None])[:, :, 0]
         except np.linalg.LinAlgError:
             lam = np.stack([_solve_right(b[i][None, :], a[i])[0] for i in range(len(b))])
     fl = mf @ lam.T  # (T, k): lambda' f_t
     fl1 = mf1 @ lam.T
-    quad = np.einsum("ik,tkl,il->ti", lam, eff, lam)
-    quad1 = np.einsum("ik,tkl,il->ti", lam, eff1[1:], lam)
+    ll = (lam[:, :, None] * lam[:, None, :]).reshape(nm, rr)
+    quad = eff.reshape(nt, rr) @ ll.T  # lambda' E[f_t f_t'] lambda
+    quad1 = eff1[1:].reshape(nt - 1, rr) @ ll.T
     e2 = o * (xm * xm - 2 * xm * fl + quad) + (1 - o) * ee
     e11 = (oc * op * (xc * xp - xc * fl1[1:] - xp * fl[1:] + quad1)
-           + oc * (1 - op) * (xc * me[:-1] - np.einsum("tik,ik->ti", efe1, lam))
-           + (1 - oc) * op * (xp * me[1:] - np.einsum("tik,ik->ti", eef1[1:], lam))
+           + oc * (1 - op) * (xc * me[:-1] - (efe1 * lam).sum(axis=2))
+           + (1 - oc) * op * (xp * me[1:] - (eef1[1:] * lam).sum(axis=2))
            + (1 - oc) * (1 - op) * ee1)
     ad, bd, cd = e2[:-1].sum(axis=0), e11.sum(axis=0), e2[1:].sum(axis=0)
     rho_new = np.clip(np.divide(bd, ad, out=np.zeros_like(bd), where=ad > 0), -_RHO_MAX, _RHO_MAX)

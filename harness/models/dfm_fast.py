@@ -99,8 +99,14 @@ def _ttmul_vec(t_ptr, t_idx, t_val, r, out):
 
 
 def _filter_loop(x, obs, z_ptr, z_idx, z_val, h, t_ptr, t_idx, t_val, qs, a1, p1, tol,
-                 a_pred, p_pred, p_filt, mk, fk, vk, use, src):  # compiled by numba
-    """Univariate Kalman filter with periodic steady-state copying; returns (llf, heavy steps)."""
+                 a_pred, p_pred, p_filt, mk, fk, vk, use, root):  # compiled by numba
+    """Univariate Kalman filter with periodic steady-state reuse; returns (llf, heavy steps).
+
+    ``root[t]`` is the step whose covariance quantities (``p_pred``, ``p_filt``, ``mk``, ``fk``,
+    ``use``) step ``t`` shares: ``t`` itself when computed, ``root[t - 3]`` when the pattern of
+    missing values repeats and the prediction covariance has converged. Only computed steps
+    write those arrays; the means are computed at every step.
+    """
     nt, n = x.shape
     m = a1.shape[0]
     a = a1.copy()
@@ -110,19 +116,20 @@ def _filter_loop(x, obs, z_ptr, z_idx, z_val, h, t_ptr, t_idx, t_val, qs, a1, p1
     mv = np.empty(m)
     llf = 0.0
     heavy = 0
+    cur = -1  # >= 0: the current prediction covariance is p_pred[cur] (P not up to date)
     for t in range(nt):
         for j in range(m):
             a_pred[t, j] = a[j]
         copy = False
         if tol > 0.0 and t >= 3 and _same_mask(obs, t, t - 3):
-            if t >= 4 and src[t - 1] == t - 4:
-                copy = True
+            if cur >= 0:
+                copy = True  # the previous step was shared, so this prediction is exact too
             else:
-                d, s = _maxabs_diff(P, p_pred[t - 3])
+                d, s = _maxabs_diff(P, p_pred[root[t - 3]])
                 copy = d <= tol * max(1.0, s)
         if copy:
-            src[t] = t - 3
-            p_pred[t] = p_pred[t - 3]
+            rt = root[t - 3]
+            root[t] = rt
             for i in range(n):
                 if not obs[t, i]:
                     continue
@@ -131,25 +138,25 @@ def _filter_loop(x, obs, z_ptr, z_idx, z_val, h, t_ptr, t_idx, t_val, qs, a1, p1
                     za += z_val[k] * a[z_idx[k]]
                 v = x[t, i] - za
                 vk[t, i] = v
-                use[t, i] = use[t - 3, i]
-                f = fk[t - 3, i]
-                fk[t, i] = f
-                mk[t, i] = mk[t - 3, i]
-                if use[t, i]:
+                if use[rt, i]:
+                    f = fk[rt, i]
                     c = v / f
                     for j in range(m):
-                        a[j] += mk[t, i, j] * c
+                        a[j] += mk[rt, i, j] * c
                     llf -= 0.5 * (_LOG2PI + math.log(f) + v * c)
-            p_filt[t] = p_filt[t - 3]
             _tmul_vec(t_ptr, t_idx, t_val, a, anew)
             a[:] = anew
-            P[:, :] = p_pred[t - 2]
+            cur = root[t - 2]  # the next prediction covariance equals that of step t - 2
             continue
+        if cur >= 0:
+            P[:, :] = p_pred[cur]
+            cur = -1
         heavy += 1
-        src[t] = -1
+        root[t] = t
         p_pred[t] = P
         for i in range(n):
             if not obs[t, i]:
+                use[t, i] = False
                 continue
             # M = P z, F = z' M + h, v = x - z' a
             for j in range(m):
@@ -201,16 +208,44 @@ def _filter_loop(x, obs, z_ptr, z_idx, z_val, h, t_ptr, t_idx, t_val, qs, a1, p1
                 s = 0.5 * (P[i, j] + P[j, i])
                 P[i, j] = s
                 P[j, i] = s
+    if cur >= 0:
+        P[:, :] = p_pred[cur]
     for j in range(m):
         a_pred[nt, j] = a[j]
     p_pred[nt] = P
+    root[nt] = nt
     return llf, heavy
 
 
+def _ttn(t_ptr, t_idx, t_val, N, tn, out):
+    """out = T' N T (T sparse), using tn as scratch."""
+    m = N.shape[0]
+    for i in range(m):
+        for j in range(m):
+            tn[i, j] = 0.0
+            out[i, j] = 0.0
+    for a_ in range(m):
+        for k in range(t_ptr[a_], t_ptr[a_ + 1]):
+            wv = t_val[k]
+            row = t_idx[k]
+            for j in range(m):
+                tn[row, j] += wv * N[a_, j]
+    for l_ in range(m):
+        for k in range(t_ptr[l_], t_ptr[l_ + 1]):
+            wv = t_val[k]
+            b_ = t_idx[k]
+            for i in range(m):
+                out[i, b_] += tn[i, l_] * wv
+
+
 def _smoother_loop(obs, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tol, a_pred, p_pred, p_filt,
-                   mk, fk, vk, use, src, bidx, eidx, fidx,
+                   mk, fk, vk, use, root, bidx, eidx, fidx,
                    mean, v_b, v_ef, v_ee, c_ee, c_fe):  # compiled by numba
-    """Univariate state smoother with steady-state copying; returns the number of heavy steps."""
+    """Univariate state smoother with steady-state reuse; returns the number of heavy steps.
+
+    Step ``t`` reuses step ``t + 3`` (``N``, ``P N`` and the smoothed covariances) when both
+    share their filter quantities (``root[t] == root[t + 3]``) and the entering ``N`` agree.
+    """
     nt, n = obs.shape
     m = a_pred.shape[1]
     nb = bidx.shape[0]
@@ -221,69 +256,79 @@ def _smoother_loop(obs, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tol, a_pred, p
     rt = np.empty(m)
     N = np.zeros((m, m))
     tn = np.empty((m, m))
+    nn = np.empty((m, m))
     w = np.empty(m)
     col = np.empty(m)
-    nin = np.empty((4, m, m))
-    nout = np.empty((4, m, m))
-    xr = np.empty((4, m, m))
+    sroot = np.empty(nt, dtype=np.int64)
+    nin = np.empty((nt, m, m))  # entering N, at computed steps
+    nout = np.empty((nt, m, m))  # N after the step's observations, at computed steps
+    xr = np.empty((nt, m, m))  # P N, at computed steps
+    cur = -1  # >= 0: the entering N equals nin[cur] (N not up to date)
     prev_copy = False
     heavy = 0
     for t in range(nt - 1, -1, -1):
-        k0 = t % 4
-        k3 = (t + 3) % 4
+        ft = root[t]
         copy = False
-        if tol > 0.0 and t + 3 < nt and src[t + 3] == t:
+        if tol > 0.0 and t + 3 < nt and root[t + 3] == ft:
             if prev_copy:
                 copy = True
             else:
-                d, s = _maxabs_diff(N, nin[k3])
+                d, s = _maxabs_diff(N, nin[sroot[t + 3]])
                 copy = d <= tol * max(1.0, s)
-        nin[k0] = N
+        if not copy and cur >= 0:
+            N[:, :] = nin[cur]
+            cur = -1
         for i in range(n - 1, -1, -1):
-            if not (obs[t, i] and use[t, i]):
+            if not (obs[t, i] and use[ft, i]):
                 continue
-            f = fk[t, i]
+            f = fk[ft, i]
             kr = 0.0
             for j in range(m):
-                kr += mk[t, i, j] * r[j]
+                kr += mk[ft, i, j] * r[j]
             c = vk[t, i] / f - kr / f
             for k in range(z_ptr[i], z_ptr[i + 1]):
                 r[z_idx[k]] += z_val[k] * c
-            if copy:
-                continue
-            # N <- z z'/F + L' N L with L = I - K z', K = M / F
-            for j in range(m):
-                s = 0.0
-                for l_ in range(m):
-                    s += N[j, l_] * mk[t, i, l_]
-                w[j] = s / f
-            cc = 0.0
-            for j in range(m):
-                cc += mk[t, i, j] * w[j]
-            cc = cc / f + 1.0 / f
-            for k in range(z_ptr[i], z_ptr[i + 1]):
-                zi = z_val[k]
-                row = z_idx[k]
-                for j in range(m):
-                    N[row, j] -= zi * w[j]
-            for k in range(z_ptr[i], z_ptr[i + 1]):
-                zi = z_val[k]
-                cl = z_idx[k]
-                for j in range(m):
-                    N[j, cl] -= w[j] * zi
-            for k in range(z_ptr[i], z_ptr[i + 1]):
-                for k2 in range(z_ptr[i], z_ptr[i + 1]):
-                    N[z_idx[k], z_idx[k2]] += z_val[k] * z_val[k2] * cc
-        P = p_pred[t]
+        P = p_pred[ft]
         if copy:
-            N[:, :] = nout[k3]
-            xr[k0] = xr[k3]
+            sr = sroot[t + 3]
+            sroot[t] = sr
             v_b[t] = v_b[t + 3]
             v_ef[t] = v_ef[t + 3]
             v_ee[t] = v_ee[t + 3]
         else:
             heavy += 1
-            X = xr[k0]
+            sroot[t] = t
+            sr = t
+            nin[t] = N
+            for i in range(n - 1, -1, -1):
+                if not (obs[t, i] and use[ft, i]):
+                    continue
+                f = fk[ft, i]
+                # N <- z z'/F + L' N L with L = I - K z', K = M / F
+                for j in range(m):
+                    s = 0.0
+                    for l_ in range(m):
+                        s += N[j, l_] * mk[ft, i, l_]
+                    w[j] = s / f
+                cc = 0.0
+                for j in range(m):
+                    cc += mk[ft, i, j] * w[j]
+                cc = cc / f + 1.0 / f
+                for k in range(z_ptr[i], z_ptr[i + 1]):
+                    zi = z_val[k]
+                    row = z_idx[k]
+                    for j in range(m):
+                        N[row, j] -= zi * w[j]
+                for k in range(z_ptr[i], z_ptr[i + 1]):
+                    zi = z_val[k]
+                    cl = z_idx[k]
+                    for j in range(m):
+                        N[j, cl] -= w[j] * zi
+                for k in range(z_ptr[i], z_ptr[i + 1]):
+                    for k2 in range(z_ptr[i], z_ptr[i + 1]):
+                        N[z_idx[k], z_idx[k2]] += z_val[k] * z_val[k2] * cc
+            nout[t] = N
+            X = xr[t]
             # X = P N (P, N symmetric)
             for i in range(m):
                 for j in range(m):
@@ -314,7 +359,6 @@ def _smoother_loop(obs, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tol, a_pred, p
                     for k in range(m):
                         s -= X[a_, k] * P[k, b_]
                     v_ef[t, i, j] = s
-        nout[k0] = N
         prev_copy = copy
         for i in range(m):
             s = a_pred[t, i]
@@ -322,54 +366,43 @@ def _smoother_loop(obs, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tol, a_pred, p
                 s += P[i, j] * r[j]
             mean[t, i] = s
         if t >= 1 and ne > 0:
-            # Cov(alpha_t, alpha_{t-1} | Y) = (I - P_t N) T P_{t-1|t-1}, at the (e_i, e_i) entries
-            X = xr[k0]
-            pf = p_filt[t - 1]
-            for i in range(ne):
-                e = eidx[i]
-                for a_ in range(m):
-                    s = 0.0
-                    for k in range(t_ptr[a_], t_ptr[a_ + 1]):
-                        s += t_val[k] * pf[t_idx[k], e]
-                    col[a_] = s
-                s = col[e]
-                for a_ in range(m):
-                    s -= X[e, a_] * col[a_]
-                c_ee[t, i] = s
-                for j in range(nr):
-                    s = col[j]
+            if copy and root[t - 1] == root[t + 2]:
+                c_ee[t] = c_ee[t + 3]
+                c_fe[t] = c_fe[t + 3]
+            else:
+                # Cov(alpha_t, alpha_{t-1} | Y) = (I - P_t N) T P_{t-1|t-1} at (e_i, e_i), (f, e_i)
+                X = xr[sr]
+                pf = p_filt[root[t - 1]]
+                for i in range(ne):
+                    e = eidx[i]
                     for a_ in range(m):
-                        s -= X[j, a_] * col[a_]
-                    c_fe[t, i, j] = s
+                        s = 0.0
+                        for k in range(t_ptr[a_], t_ptr[a_ + 1]):
+                            s += t_val[k] * pf[t_idx[k], e]
+                        col[a_] = s
+                    s = col[e]
+                    for a_ in range(m):
+                        s -= X[e, a_] * col[a_]
+                    c_ee[t, i] = s
+                    for j in range(nr):
+                        s = col[j]
+                        for a_ in range(m):
+                            s -= X[j, a_] * col[a_]
+                        c_fe[t, i, j] = s
         # move to t - 1: r <- T' r, N <- T' N T
         _ttmul_vec(t_ptr, t_idx, t_val, r, rt)
         r[:] = rt
-        if t > 0 and copy:
-            # N_out[t] = N_out[t + 3], so the entering N of t - 1 is that of t + 2
-            N[:, :] = nin[(t + 2) % 4]
-        elif t > 0:
-            for i in range(m):
-                for j in range(m):
-                    tn[i, j] = 0.0
-            for a_ in range(m):
-                for k in range(t_ptr[a_], t_ptr[a_ + 1]):
-                    wv = t_val[k]
-                    row = t_idx[k]
-                    for j in range(m):
-                        tn[row, j] += wv * N[a_, j]
-            for i in range(m):
-                for j in range(m):
-                    N[i, j] = 0.0
-            for l_ in range(m):
-                for k in range(t_ptr[l_], t_ptr[l_ + 1]):
-                    wv = t_val[k]
-                    b_ = t_idx[k]
-                    for i in range(m):
-                        N[i, b_] += tn[i, l_] * wv
+        if t > 0:
+            if copy:
+                # N_out[t] = N_out[t + 3], so the entering N of t - 1 is that of t + 2
+                cur = sroot[t + 2]
+            else:
+                _ttn(t_ptr, t_idx, t_val, N, tn, nn)
+                N[:, :] = nn
     return heavy
 
 
-def _weights_loop(obs, use, mk, fk, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tstar, zstar,
+def _weights_loop(obs, use, mk, fk, root, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, tstar, zstar,
                   pstar, w):  # compiled by numba
     """Weights of every observation in the smoothed signal ``zstar' alpha_hat_{tstar}``.
 
@@ -390,17 +423,18 @@ def _weights_loop(obs, use, mk, fk, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, ts
             s += pstar[j, k] * zstar[k]
         beta[j] = s
     for t in range(tstar, nt):
+        ft = root[t]
         for i in range(n):
-            if not (obs[t, i] and use[t, i]):
+            if not (obs[t, i] and use[ft, i]):
                 continue
-            f = fk[t, i]
+            f = fk[ft, i]
             zb = 0.0
             for k in range(z_ptr[i], z_ptr[i + 1]):
                 zb += z_val[k] * beta[z_idx[k]]
             ci = zb / f
             c[t, i] = ci
             for j in range(m):
-                beta[j] -= mk[t, i, j] / f * zb
+                beta[j] -= mk[ft, i, j] / f * zb
         _tmul_vec(t_ptr, t_idx, t_val, beta, bt)
         beta[:] = bt
     lam = np.zeros(m)
@@ -409,14 +443,15 @@ def _weights_loop(obs, use, mk, fk, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, ts
         if t < nt - 1:
             _ttmul_vec(t_ptr, t_idx, t_val, lam, lt)
             lam[:] = lt
+        ft = root[t]
         for i in range(n - 1, -1, -1):
-            if not (obs[t, i] and use[t, i]):
+            if not (obs[t, i] and use[ft, i]):
                 w[t, i] = 0.0
                 continue
-            f = fk[t, i]
+            f = fk[ft, i]
             kl = 0.0
             for j in range(m):
-                kl += mk[t, i, j] * lam[j]
+                kl += mk[ft, i, j] * lam[j]
             wi = kl / f + c[t, i]
             w[t, i] = wi
             for k in range(z_ptr[i], z_ptr[i + 1]):
@@ -426,7 +461,7 @@ def _weights_loop(obs, use, mk, fk, z_ptr, z_idx, z_val, t_ptr, t_idx, t_val, ts
                 lam[j] += zstar[j]
 
 
-_KERNELS = ("_same_mask", "_maxabs_diff", "_tmul_vec", "_ttmul_vec", "_filter_loop",
+_KERNELS = ("_same_mask", "_maxabs_diff", "_tmul_vec", "_ttmul_vec", "_ttn", "_filter_loop",
             "_smoother_loop", "_weights_loop")
 _FAST: dict[str, object] = {}
 _LOCK = threading.Lock()
@@ -459,17 +494,21 @@ class FilterOutput:
 
     llf: float
     a_pred: np.ndarray  # (T + 1, m)
-    p_pred: np.ndarray  # (T + 1, m, m)
-    p_filt: np.ndarray  # (T, m, m)
-    mk: np.ndarray  # (T, n, m)  P z per univariate step
-    fk: np.ndarray  # (T, n)
-    vk: np.ndarray  # (T, n)
-    use: np.ndarray  # (T, n) bool
-    src: np.ndarray  # (T,) step copied from (-1: computed)
+    p_pred: np.ndarray  # (T + 1, m, m), valid at computed steps (read through root)
+    p_filt: np.ndarray  # (T, m, m), idem
+    mk: np.ndarray  # (T, n, m)  P z per univariate step, idem
+    fk: np.ndarray  # (T, n), idem
+    vk: np.ndarray  # (T, n) innovations (every step)
+    use: np.ndarray  # (T, n) bool, idem
+    root: np.ndarray  # (T + 1,) the computed step whose covariance quantities step t shares
     obs: np.ndarray  # (T, n) bool
     heavy: int
     z: tuple
     t: tuple
+
+    def pred_cov(self, t: int) -> np.ndarray:
+        """The one-step prediction covariance ``P_t`` (``t = T``: beyond the sample)."""
+        return self.p_pred[self.root[t]]
 
 
 def filter_fast(x: np.ndarray, ss: StateSpace, tol: float = 1e-11, *,
@@ -495,12 +534,12 @@ def filter_fast(x: np.ndarray, ss: StateSpace, tol: float = 1e-11, *,
     # every entry a later step reads is written first, so the big arrays need no zeroing
     out = FilterOutput(0.0, np.empty((nt + 1, m)), np.empty((nt + 1, m, m)), np.empty((nt, m, m)),
                        np.empty((nt, n, m)), np.zeros((nt, n)), np.zeros((nt, n)),
-                       np.zeros((nt, n), dtype=np.bool_), np.full(nt, -1, dtype=np.int64), obs, 0,
-                       z, tt)
+                       np.zeros((nt, n), dtype=np.bool_), np.full(nt + 1, -1, dtype=np.int64), obs,
+                       0, z, tt)
     llf, heavy = k["_filter_loop"](x, obs, *z, np.ascontiguousarray(ss.h), *tt,
                                    np.ascontiguousarray(ss.Q), ss.a1.copy(), ss.P1.copy(), float(tol),
                                    out.a_pred, out.p_pred, out.p_filt, out.mk, out.fk, out.vk,
-                                   out.use, out.src)
+                                   out.use, out.root)
     out.llf, out.heavy = float(llf), int(heavy)
     return out
 
@@ -532,7 +571,7 @@ def smooth_fast(fo: FilterOutput, ss: StateSpace, tol: float = 1e-11, *,
                           np.empty((nt, ne, 2 * r)), np.empty((nt, ne)), np.zeros((nt, ne)),
                           np.zeros((nt, ne, r)))
     out.heavy = int(k["_smoother_loop"](fo.obs, *fo.z, *fo.t, float(tol), fo.a_pred, fo.p_pred,
-                                        fo.p_filt, fo.mk, fo.fk, fo.vk, fo.use, fo.src, bidx, eidx,
+                                        fo.p_filt, fo.mk, fo.fk, fo.vk, fo.use, fo.root, bidx, eidx,
                                         fidx, out.mean, out.v_b, out.v_ef, out.v_ee, out.c_ee,
                                         out.c_fe))
     return out
@@ -550,6 +589,6 @@ def observation_weights(fo: FilterOutput, tstar: int, zstar: np.ndarray, *,
     if not 0 <= tstar < nt:
         raise ValueError(f"observation_weights: tstar must be in [0, {nt}), got {tstar}")
     w = np.zeros(fo.obs.shape)
-    k["_weights_loop"](fo.obs, fo.use, fo.mk, fo.fk, *fo.z, *fo.t, int(tstar),
-                       np.ascontiguousarray(zstar, dtype=np.float64), fo.p_pred[tstar], w)
+    k["_weights_loop"](fo.obs, fo.use, fo.mk, fo.fk, fo.root, *fo.z, *fo.t, int(tstar),
+                       np.ascontiguousarray(zstar, dtype=np.float64), fo.pred_cov(tstar), w)
     return w

@@ -51,11 +51,13 @@ __all__ = [
     "MM_WEIGHTS",
     "DFMParams",
     "StateLayout",
+    "from_statsmodels_vector",
     "StateSpace",
     "kalman_reference",
     "simulation_smoother",
     "stationary_factor_cov",
     "system",
+    "to_statsmodels_vector",
 ]
 
 #: Mariano & Murasawa (2003) weights of the monthly latent growth in a quarterly growth rate
@@ -168,6 +170,41 @@ class DFMParams:
         """All parameters as one vector (for convergence checks and comparisons)."""
         return np.concatenate([self.loadings.ravel(), self.factor_ar.ravel(),
                                self.factor_cov.ravel(), self.idio_ar, self.idio_var])
+
+
+def to_statsmodels_vector(params: DFMParams, idio_ar1: bool = True) -> np.ndarray:
+    """The parameters as statsmodels' ``DynamicFactorMQ`` parameter vector (for comparisons).
+
+    Order: loadings, factor VAR ``[A_1 ... A_p]`` row by row, the lower triangle of
+    ``chol(Q)``, the idiosyncratic AR coefficients (if ``idio_ar1``), the idiosyncratic
+    variances. statsmodels puts monthly series before quarterly ones: the series order of
+    ``params`` must already be so.
+    """
+    r = params.loadings.shape[1]
+    chol = np.linalg.cholesky(params.factor_cov)[np.tril_indices(r)]
+    parts = [params.loadings.ravel(), np.concatenate(list(params.factor_ar), axis=1).ravel(), chol]
+    if idio_ar1:
+        parts.append(params.idio_ar)
+    parts.append(params.idio_var)
+    return np.concatenate(parts)
+
+
+def from_statsmodels_vector(v: np.ndarray, n: int, n_factors: int, factor_lags: int,
+                            idio_ar1: bool = True) -> DFMParams:
+    """Inverse of :func:`to_statsmodels_vector` (one factor block loading on every series)."""
+    v = np.asarray(v, dtype=float)
+    r, p = n_factors, factor_lags
+    lo = v[: n * r].reshape(n, r)
+    k = n * r
+    a = v[k:k + r * r * p].reshape(r, r * p)
+    k += r * r * p
+    chol = np.zeros((r, r))
+    chol[np.tril_indices(r)] = v[k:k + r * (r + 1) // 2]
+    k += r * (r + 1) // 2
+    rho = v[k:k + n] if idio_ar1 else np.zeros(n)
+    k += n if idio_ar1 else 0
+    return DFMParams(lo, np.stack([a[:, i * r:(i + 1) * r] for i in range(p)]), chol @ chol.T,
+                     rho, v[k:k + n])
 
 
 @dataclass(frozen=True)
