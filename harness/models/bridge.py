@@ -109,6 +109,9 @@ class BridgeEquations(BaseModel):
     version = "1"
     #: the information-set form the model needs: "native" (monthly axis, quarterly targets)
     infoset_layout: ClassVar[str] = "native"
+    #: modules whose code the results depend on (for a cache key beyond this module's source)
+    source_modules: ClassVar[tuple[str, ...]] = (
+        "harness.models.ar", "harness.models.bridge", "harness.models.dfm_native")
     param_constraints = {
         "max_lags": [Interval(int, 0, 24)],
         "aggregate": [Options("mean", "mm")],

@@ -130,6 +130,10 @@ class DynamicFactorModel(BaseModel):
     version = "1"
     #: the information-set form the model needs: "native" (monthly axis, quarterly targets)
     infoset_layout: ClassVar[str] = "native"
+    #: modules whose code the results depend on (for a cache key beyond this module's source)
+    source_modules: ClassVar[tuple[str, ...]] = (
+        "harness.models.dfm", "harness.models.dfm_em", "harness.models.dfm_fast",
+        "harness.models.dfm_native", "harness.models.dfm_ssm")
     param_constraints = {
         "n_factors": [Interval(int, 1, 10)],
         "factor_lags": [Interval(int, 1, 12)],

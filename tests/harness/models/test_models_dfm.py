@@ -19,10 +19,12 @@ from harness.models.dfm_native import (
 from harness.models.dfm_ssm import (
     DFMParams,
     StateLayout,
+    from_statsmodels_vector,
     kalman_reference,
     simulation_smoother,
     stationary_factor_cov,
     system,
+    to_statsmodels_vector,
 )
 from harness.testing import make_infoset, make_targets, model_checks
 
@@ -46,30 +48,15 @@ def _layout(n_monthly=20, r=1, p=2, ar1=True):
 
 
 def _to_sm(p: DFMParams) -> np.ndarray:
-    """Our parameters as statsmodels' DynamicFactorMQ vector (loadings, AR, chol(Q), rho, s2)."""
-    r = p.loadings.shape[1]
-    chol = np.linalg.cholesky(p.factor_cov)[np.tril_indices(r)]
-    return np.concatenate([p.loadings.ravel(), np.concatenate(list(p.factor_ar), axis=1).ravel(),
-                           chol, p.idio_ar, p.idio_var])
+    return to_statsmodels_vector(p, True)
 
 
 def _to_sm_wn(p: DFMParams) -> np.ndarray:
-    r = p.loadings.shape[1]
-    chol = np.linalg.cholesky(p.factor_cov)[np.tril_indices(r)]
-    return np.concatenate([p.loadings.ravel(), np.concatenate(list(p.factor_ar), axis=1).ravel(),
-                           chol, p.idio_var])
+    return to_statsmodels_vector(p, False)
 
 
 def _from_sm(v: np.ndarray, n: int, r: int, p: int) -> DFMParams:
-    lo = v[: n * r].reshape(n, r)
-    k = n * r
-    a = v[k:k + r * r * p].reshape(r, r * p)
-    k += r * r * p
-    chol = np.zeros((r, r))
-    chol[np.tril_indices(r)] = v[k:k + r * (r + 1) // 2]
-    k += r * (r + 1) // 2
-    return DFMParams(lo, np.stack([a[:, i * r:(i + 1) * r] for i in range(p)]), chol @ chol.T,
-                     v[k:k + n], v[k + n:k + 2 * n])
+    return from_statsmodels_vector(v, n, r, p, True)
 
 
 def _sm_model(x, n_monthly=20, r=1, p=2, ar1=True):
