@@ -200,9 +200,10 @@ def test_observation_weights_reproduce_the_smoothed_signal():
 
 
 # ---------------------------------------------------------------------------- estimates vs statsmodels
-def test_estimates_against_statsmodels_dynamic_factor_mq():
+@pytest.mark.parametrize("n_months", [180, 360])
+def test_estimates_against_statsmodels_dynamic_factor_mq(n_months):
     """Own EM estimate: likelihood >= statsmodels', factors correlate > 0.99, nowcasts close."""
-    mon, q = _panel(180, seed=1)
+    mon, q = _panel(n_months, seed=1)
     info = make_native_infoset(mon, q, NAMES, ["gdp"], start="1995-01")
     tg = native_targets(info, ["gdp"], (-1, 0, 1))
     model = DynamicFactorModel()
