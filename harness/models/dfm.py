@@ -74,7 +74,9 @@ class DynamicFactorModel(BaseModel):
     ``f_t + 2 f_{t-1} + 3 f_{t-2} + 2 f_{t-3} + f_{t-4}`` of the monthly factors and of its own
     monthly idiosyncratic term, and is observed at its quarter's last month. The parameters are
     maximum-likelihood estimates by the EM algorithm for arbitrary patterns of missing data
-    (Bańbura & Modugno 2014), accelerated by SQUAREM; see :mod:`harness.models.dfm_em`.
+    (Bańbura & Modugno 2014), accelerated by SQUAREM; unlike statsmodels' ``DynamicFactorMQ``,
+    whose EM leaves the loadings at their starting values when the idiosyncratic terms are
+    AR(1), the loadings are updated too (an ECM step); see :mod:`harness.models.dfm_em`.
 
     Predictive draws for each quarterly target and horizon come from the simulation smoother of
     Durbin & Koopman (2002) run on the window from the earliest unpublished target month to the

@@ -1,22 +1,42 @@
 """EM estimation of the mixed-frequency dynamic factor model with missing data.
 
 The expectation-maximisation algorithm of Bańbura & Modugno (2014): the E-step runs the Kalman
-smoother at the current parameters; the M-step maximises the expected complete-data
+smoother at the current parameters; the M-step raises the expected complete-data
 log-likelihood in closed form (their eq. 6-13, with the quarterly restrictions of Bańbura,
 Giannone & Reichlin 2011, App. C, written as loadings on the aggregate ``sum_k w_k f_{t-k}``).
 Sums run over the same periods as statsmodels' ``DynamicFactorMQ`` (``t = 2..T`` for the
-transition equations, the observed periods of each series for its loadings), so one iteration
-from the same parameters gives the same new parameters; the initial state is the stationary law
-at the current parameters and is not itself estimated (statsmodels' ``em_initialization=False``).
+transition equations, the observed periods of each series for its loadings); the initial state
+is the stationary law at the current parameters and is not itself estimated (statsmodels'
+``em_initialization=False``); its dependence on the parameters is left out of the M-step, as
+there, so the ascent holds up to that term (small decreases of order 1e-5 can occur near the
+optimum).
+
+**Loadings with AR(1) idiosyncratic terms.** With the idiosyncratic terms in the state and no
+measurement error, ``x - e = lambda' f`` holds exactly in the complete data ``(f, e)``, and the
+textbook update returns the current loadings unchanged: statsmodels' ``DynamicFactorMQ`` (and
+Bańbura & Modugno's version as their measurement error ``kappa -> 0``) never moves them from the
+starting values. Here the complete data are the factors, the idiosyncratic terms of the cells
+the observations do not pin down, and the observations: at an observed monthly cell
+``e_t = x_t - lambda' f_t``; in an observed quarter the first month's term follows from the
+quarterly value (weight 3 in the aggregate). The change of variables has a constant Jacobian, so
+this is a valid complete-data likelihood in which the loadings are identified. The M-step then
+updates ``lambda`` given ``rho`` (least squares on quasi-differences) and ``(rho, sigma^2)`` given
+``lambda``, each a conditional maximisation (ECM; Meng & Rubin 1993). ``update_loadings=False``
+gives statsmodels' step, which the tests bind to statsmodels to 1e-10.
+
+**Acceleration.** SQUAREM (Varadhan & Roland 2008) extrapolates two EM steps, with a
+monotonicity safeguard; see :func:`em_fit`.
 
 Convergence: ``2 |l_k - l_{k-1}| / (|l_k| + |l_{k-1}|) < tol`` (Bańbura & Modugno 2014; the
-criterion of statsmodels), at most ``max_iter`` iterations; an iteration that lowers the
-log-likelihood by more than 1e-4 is reverted and ends the loop (as statsmodels' default).
+criterion of statsmodels), at most ``max_iter`` E-steps; an iterate that lowers the
+log-likelihood by more than 1e-4 is rejected and ends the loop (as statsmodels' default).
 
 Safeguards the published algorithm does not have: idiosyncratic AR coefficients are clipped to
 ``|rho| <= 0.999`` and variances floored at 1e-6 (a variance of zero would make the state
 singular), and a factor VAR estimate with a companion spectral radius above 0.999 is shrunk
 radially (``A_l <- c^l A_l``) to radius 0.999 so that the stationary initial state exists.
+Monthly series with a gap longer than one month enter the loading step through the latent
+terms of the gap (exact); nothing is approximated there.
 
 References
 ----------
@@ -26,6 +46,10 @@ Bańbura, M., Giannone, D. and Reichlin, L. (2011). Nowcasting. In Clements, M. 
 D. F. (eds), *The Oxford Handbook of Economic Forecasting*, Oxford University Press, 193-224.
 Dempster, A. P., Laird, N. M. and Rubin, D. B. (1977). Maximum likelihood from incomplete data
 via the EM algorithm. *Journal of the Royal Statistical Society B* 39(1), 1-38.
+Meng, X.-L. and Rubin, D. B. (1993). Maximum likelihood estimation via the ECM algorithm: a
+general framework. *Biometrika* 80(2), 267-278.
+Varadhan, R. and Roland, C. (2008). Simple and globally convergent methods for accelerating
+the convergence of any EM algorithm. *Scandinavian Journal of Statistics* 35(2), 335-353.
 """
 
 from __future__ import annotations
