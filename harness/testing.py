@@ -284,18 +284,29 @@ def check_trailing_nan(model, info: InfoSet, targets: Targets) -> None:
     np.testing.assert_array_equal(out, ref)
 
 
+def _target_row(info: InfoSet, targets: Targets, v: str, h: int) -> int:
+    """Panel row holding target ``v`` at horizon ``h``.
+
+    A realigned panel holds reference period p in the row labelled p + shift; on a native
+    (monthly) axis a quarterly target sits at its quarter's last month.
+    """
+    first = info.periods[0]
+    shifts = getattr(info, "shifts", None) or {}
+    period = targets.current + int(h)
+    if info.freq == "M" and targets.freq == "Q":
+        return 3 * period.ordinal + 2 - first.ordinal
+    return period.ordinal + int(shifts.get(v, 0)) - first.ordinal
+
+
 def _published(info: InfoSet, targets: Targets) -> list[tuple[int, int, float]]:
     """``(target variable, horizon index, value)`` of every target already published in ``info``."""
     vals = info.values()
     left_out = _partial(info)
-    first = info.periods[0]
-    shifts = getattr(info, "shifts", None) or {}
     found = []
     for j, v in enumerate(targets.variables):
         col = info.variables.index(v)
         for k, h in enumerate(targets.horizons):
-            # a realigned panel holds reference period p in the row labelled p + shift
-            row = (targets.current + int(h)).ordinal + int(shifts.get(v, 0)) - first.ordinal
+            row = _target_row(info, targets, v, h)
             if 0 <= row < len(vals) and np.isfinite(vals[row, col]) and not left_out[row, col]:
                 found.append((j, k, float(vals[row, col])))
     return found
@@ -320,9 +331,7 @@ def check_partial_is_unobserved(model, info: InfoSet, targets: Targets) -> None:
     j, k, _ = found[0]
     v = targets.variables[j]
     col = info.variables.index(v)
-    shifts = getattr(info, "shifts", None) or {}
-    row = (targets.current + int(targets.horizons[k])).ordinal + int(shifts.get(v, 0)) \
-        - info.periods[0].ordinal
+    row = _target_row(info, targets, v, targets.horizons[k])
     flags = _partial(info).copy()
     flags[row, col] = True
     flagged = replace(info, partial=_panel_like(info, flags))

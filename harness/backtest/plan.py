@@ -98,7 +98,9 @@ def _model_code_hash(cls) -> str:
     if name.startswith("harness.models"):
         files = sorted(Path(sys.modules["harness.models"].__file__).parent.glob("*.py"))
     elif mod is not None and getattr(mod, "__file__", None):
-        files = [Path(mod.__file__)]
+        # a user's model may name the other modules its results depend on
+        extra = [sys.modules[m] for m in getattr(cls, "source_modules", ()) if m in sys.modules]
+        files = [Path(mod.__file__)] + [Path(m.__file__) for m in extra if getattr(m, "__file__", None)]
     for f in files:
         try:
             h.update(f.name.encode() + b"\0" + f.read_bytes())

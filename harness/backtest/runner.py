@@ -1,7 +1,7 @@
 """The backtest runner: tasks = model × origin, refit in parallel, seeded, cached, resumable.
 
 Data flow: the spec names a store; the cube is built once in the driver; the information set of
-every origin is built there in one vectorised pass (:func:`vintages.infoset.build_infosets`) and
+every origin is built there in one vectorised pass (:func:`vintages.build_infosets`) and
 shipped with its task, so workers never read the store. Each task is sent through
 ``joblib.Parallel`` — loky locally, or dask.distributed via joblib's dask backend — to a
 module-level worker that returns a small record (status, timing, traceback on failure) and

@@ -1,7 +1,7 @@
 """Scoring a run against a truth, without refitting: the bridge from the ledger to the tables.
 
 ``evaluate(run_dir, truth)`` reads the ledger, computes the truth of every target with the same
-transformation inside the truth's vintage (:func:`vintages.infoset.truth_values`), scores every
+transformation inside the truth's vintage (:func:`vintages.truth_values`), scores every
 forecast (:func:`harness.scores.score_all`), assigns sub-periods by target period (full sample,
 custom ranges, recession/expansion), aggregates, forms ratios to the benchmark, and runs the
 comparison and calibration tests (:mod:`harness.compare`).

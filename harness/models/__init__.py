@@ -16,8 +16,10 @@ from harness.models.base import (
     make_model,
     register,
 )
+from harness.models.bridge import BridgeEquations  # noqa: F401  (registers "bridge")
 from harness.models.bvar import BayesianVAR
 from harness.models.bvar_sv import BayesianVARSV
+from harness.models.dfm import DynamicFactorModel  # noqa: F401  (registers "dfm")
 from harness.models.errors import (
     InsufficientDataError,
     ModelError,

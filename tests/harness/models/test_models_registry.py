@@ -23,7 +23,7 @@ from harness.testing import make_infoset, make_targets
 
 def test_builtin_names_are_registered_and_sorted():
     """The four built-in names resolve to their classes and are listed sorted."""
-    assert available_models() == ["ar", "bvar", "bvar_sv", "nochange"]
+    assert available_models() == ["ar", "bridge", "bvar", "bvar_sv", "dfm", "nochange"]
     assert get_model_class("nochange") is NoChange
     assert get_model_class("ar") is AutoRegression
     assert get_model_class("bvar") is BayesianVAR
@@ -32,7 +32,7 @@ def test_builtin_names_are_registered_and_sorted():
 
 def test_unknown_name_lists_the_valid_names_sorted():
     """An unknown model name raises a ValueError listing the registered names, sorted."""
-    with pytest.raises(ValueError, match=r"\['ar', 'bvar', 'bvar_sv', 'nochange'\]"):
+    with pytest.raises(ValueError, match=r"\['ar', 'bridge', 'bvar', 'bvar_sv', 'dfm', 'nochange'\]"):
         get_model_class("arima")
 
 
