@@ -13,7 +13,7 @@ def _dispatch(plan: Plan, todo: list[Task], *, jobs, backend, scheduler):
     from joblib import Parallel, delayed, parallel_config
 
     spec = plan.spec
-    args = [(plan.models[t.model], plan.infos[t.index], plan.targets[t.index], spec.draws, spec.seed, t.seed_key,
+    args = [(plan.models[t.model], plan.info_for(t), plan.targets_for(t), spec.draws, spec.seed, t.seed_key,
              t.key, str(spec.cache_dir), {"model": t.model, "origin": str(t.origin)}) for t in todo]
     n_jobs = jobs or os.cpu_count() or 1
     if backend == "sequential":

@@ -32,6 +32,7 @@ class Task:
     key: str
     seed_key: tuple[int, int]
     index: int  # position of the origin in the plan
+    layout: str = "panel"  # which information sets the model reads: "panel" or "native"
 
 
 @dataclass
@@ -47,6 +48,18 @@ class Plan:
     tasks: list[Task]
     timings: dict = field(default_factory=dict)
     store_batches: int = 0
+    #: native-frequency information sets and their (target-frequency) targets, built only when a
+    #: model of the spec declares ``infoset_layout = "native"``
+    native_infos: list | None = None
+    native_targets: list | None = None
+
+    def info_for(self, task: Task):
+        """The information set a task's model reads."""
+        return (self.native_infos if task.layout == "native" else self.infos)[task.index]
+
+    def targets_for(self, task: Task):
+        """The targets of a task (in the target variables' frequency for a native model)."""
+        return (self.native_targets if task.layout == "native" else self.targets)[task.index]
 
     def explain(self) -> str:
         """A human-readable description of the resolved plan (``harness run --explain``)."""
@@ -185,13 +198,52 @@ def make_plan(spec: Spec) -> Plan:
     infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
     targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, spec.freq) for info in infos]
     t2 = time.perf_counter()
+    classes = {ms.name: get_model_class(ms.type) for ms in spec.models}
+    native = _native_infosets(spec, cube, origins, classes)
+    t3 = time.perf_counter()
     models, tasks = {}, []
     for ms in spec.models:
-        cls = get_model_class(ms.type)
+        cls = classes[ms.name]
         models[ms.name] = cls(**ms.params)
-        for i, (o, info, tg) in enumerate(zip(origins, infos, targets, strict=True)):
+        layout = _layout_of(cls)
+        inf, tgs = (native if layout == "native" else (infos, targets))
+        for i, (o, info, tg) in enumerate(zip(origins, inf, tgs, strict=True)):
             sk = seed_key(ms.name, o)
-            tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk), sk, i))
-    return Plan(spec, store.checksum(), origins, infos, targets, models, tasks,
-                {"store_and_origins": t1 - t0, "infosets": t2 - t1, "keys": time.perf_counter() - t2},
+            tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk), sk, i, layout))
+    plan = Plan(spec, store.checksum(), origins, infos, targets, models, tasks,
+                {"store_and_origins": t1 - t0, "infosets": t2 - t1 + (t3 - t2),
+                 "keys": time.perf_counter() - t3},
                 store_batches=len(store.manifest()["batches"]))
+    if native is not None:
+        plan.native_infos, plan.native_targets = native
+    return plan
+
+
+def _layout_of(cls) -> str:
+    return "native" if getattr(cls, "infoset_layout", "panel") == "native" else "panel"
+
+
+def _native_infosets(spec: Spec, cube, origins, classes: dict):
+    """Native-frequency information sets (monthly axis) and quarterly targets, if a model needs them.
+
+    Each variable keeps its own frequency and transformation (a monthly indicator's ``convert``
+    and ``partial`` apply to the quarterly panel only and are dropped here).
+    """
+    if not any(_layout_of(c) == "native" for c in classes.values()):
+        return None
+    from vintages import SeriesSpec, build_infosets, make_targets
+
+    series = {n: SeriesSpec(transform=s.transform) for n, s in spec.variables.items()}
+    infos = build_infosets(cube, origins, series, freq="M", layout="native", policy="keep",
+                           mode=spec.mode)
+    tfreq = spec.freq
+    odd = [v for v in spec.targets.variables if cube.freq_of(v) != tfreq]
+    if odd:
+        from harness.errors import SpecError
+
+        names = sorted(n for n, c in classes.items() if _layout_of(c) == "native")
+        raise SpecError(f"{spec.path}: [targets] {odd} are not of the panel frequency {tfreq!r} in the "
+                        f"store (they are converted there); native-frequency model(s) {names} forecast "
+                        "targets in their own frequency: target only variables of that frequency")
+    targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, tfreq) for info in infos]
+    return infos, targets
