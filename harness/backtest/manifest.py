@@ -60,6 +60,10 @@ class RunManifest:
         Digest of the set of completed task keys the ledger holds.
     ledger_rows : int
         Rows of the ledger file (checked on read).
+    pools : str
+        File name of the pools' weights (origin, variable, horizon, model, weight, fallback), or ''.
+    pool_warnings : tuple of dict
+        The documented fallbacks the pools reported (equal weights until enough scored forecasts).
     """
 
     name: str
@@ -94,6 +98,8 @@ class RunManifest:
     ledger_digest: str
     ledger_rows: int
     diagnostics: dict[str, Any] = field(default_factory=dict)
+    pools: str = ""
+    pool_warnings: tuple[dict[str, Any], ...] = ()
     format: str = FORMAT
 
     @property
@@ -128,13 +134,15 @@ class RunManifest:
                            "spec with 'harness run' to rebuild the run directory (the task cache is "
                            "reused)")
         names = {f.name for f in fields(cls)}
-        missing = sorted(n for n in names if n not in d and n not in ("diagnostics", "format"))
+        missing = sorted(n for n in names if n not in d and n not in ("diagnostics", "format", "pools",
+                                                                     "pool_warnings"))
         if missing:
             raise RunError(f"{source}: run manifest lacks {missing}; the file is damaged or was not "
                            "written by harness")
         kw = {k: v for k, v in d.items() if k in names}
         kw["scoring"] = ScoringSection.from_dict(d["scoring"])
-        for k in ("models", "origins", "targets", "tasks", "failures"):
+        kw.setdefault("pool_warnings", ())
+        for k in ("models", "origins", "targets", "tasks", "failures", "pool_warnings"):
             kw[k] = tuple(kw[k])
         kw["horizons"] = tuple(int(h) for h in kw["horizons"])
         kw["target_periods"] = tuple(tuple(x) for x in kw["target_periods"])

@@ -52,6 +52,8 @@ class Plan:
     #: model of the spec declares ``infoset_layout = "native"``
     native_infos: list | None = None
     native_targets: list | None = None
+    #: the store's release index (for truths the post-run steps need, e.g. pools' weights)
+    cube: object = field(default=None, repr=False)
 
     def info_for(self, task: Task):
         """The information set a task's model reads."""
@@ -216,6 +218,7 @@ def make_plan(spec: Spec) -> Plan:
                 store_batches=len(store.manifest()["batches"]))
     if native is not None:
         plan.native_infos, plan.native_targets = native
+    plan.cube = cube
     return plan
 
 

@@ -66,6 +66,20 @@ class RunResult:
         return s
 
 
+def _write_pool_weights(run_dir: Path, pools) -> str:
+    """Write the pools' weights as ``pools-<digest>.parquet`` (named by the manifest); '' if none."""
+    if pools is None or pools.weights is None:
+        return ""
+    import hashlib
+
+    from vintages import atomic_write_bytes
+
+    data = pools.weights.to_parquet(index=False)
+    name = f"pools-{hashlib.sha256(data).hexdigest()[:16]}.parquet"
+    atomic_write_bytes(run_dir / name, data)
+    return name
+
+
 def _previous_manifest(run_dir: Path) -> RunManifest | None:
     """The run directory's manifest before this run (None if absent or of another format)."""
     from harness.errors import RunError
@@ -155,9 +169,16 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
             records[rec["key"]] = rec
             bar.update(rec["status"] == "ok")
     bar.close()
+    # -- pools: combinations of the models' draws, after their members (harness.backtest.pooling)
+    pools = None
+    if spec.pools:
+        from harness.backtest.pooling import compute_pools
+
+        pools = compute_pools(plan, cache, records)
     t_assemble = time.perf_counter()
-    ordered = [records[t.key] for t in plan.tasks]
+    ordered = [records[t.key] for t in plan.tasks] + (pools.records if pools else [])
     files = assemble(out, cache, ordered, previous)
+    pool_file = _write_pool_weights(out, pools)
     failures = [{k: r.get(k) for k in ("model", "origin", "key", "error", "traceback")}
                 for r in ordered if r.get("status") != "ok"]
     computed = sum(1 for r in ordered if not r.get("cached"))
@@ -178,8 +199,12 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
         freq=spec.freq,
         seed=spec.seed,
         draws=spec.draws,
-        models=tuple(m.name for m in spec.models),
-        model_specs={m.name: {"type": m.type, "params": m.params} for m in spec.models},
+        models=spec.labels,
+        model_specs={**{m.name: {"type": m.type, "params": m.params} for m in spec.models},
+                     **{p.name: {"type": f"pool:{p.scheme}",
+                                 "params": {"members": list(p.members), "window": p.window,
+                                            "min_scored": p.min_scored, "score": p.score,
+                                            "truth": p.truth}} for p in spec.pools}},
         origins=tuple(str(o) for o in plan.origins),
         targets=tuple(spec.targets.variables),
         horizons=tuple(spec.targets.horizons),
@@ -199,6 +224,8 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
         provenance=files.provenance,
         ledger_digest=files.digest,
         ledger_rows=files.rows,
+        pools=pool_file,
+        pool_warnings=tuple(pools.warnings) if pools else (),
     )
     manifest.write(out)
     remove_stale(out, files)

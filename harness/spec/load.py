@@ -69,13 +69,14 @@ from harness.errors import SpecError
 from harness.spec.sections import (
     NAME,
     ModelSpec,
+    PoolSpec,
     RunSection,
     ScoringSection,
     SubPeriod,
     TargetsSection,
 )
 
-SECTION_KEYS = ("models", "origins", "run", "scoring", "targets", "variables")
+SECTION_KEYS = ("models", "origins", "pools", "run", "scoring", "targets", "variables")
 REQUIRED_SECTIONS = ("run", "origins", "variables", "targets", "models")
 VARIABLE_KEYS = ("convert", "partial", "transform")
 _NAME = re.compile(f"^{NAME}$")
@@ -105,6 +106,7 @@ class Spec:
     targets: TargetsSection
     models: tuple[ModelSpec, ...]
     scoring: ScoringSection
+    pools: tuple[PoolSpec, ...] = ()
 
     # the run section's values, read often
     @property
@@ -150,6 +152,11 @@ class Spec:
     def hash(self) -> str:
         """Digest of the spec's content (not of its file name or location)."""
         return hashlib.sha256(json.dumps(self.raw, sort_keys=True, default=str).encode()).hexdigest()
+
+    @property
+    def labels(self) -> tuple[str, ...]:
+        """Every forecaster of the run: the models, then the pools."""
+        return tuple(m.name for m in self.models) + tuple(p.name for p in self.pools)
 
     def model(self, name: str) -> ModelSpec:
         for m in self.models:
@@ -559,6 +566,42 @@ def _scoring_section(raw, path: Path, base: Path, models, variables, freq: str,
                           subperiods=tuple(subs), tests=tests, **levels)
 
 
+def _pools_section(raw, path: Path, models) -> tuple[PoolSpec, ...]:
+    from vintages import parse_truth
+
+    table = _table(path, "[pools]", raw.get("pools", {}))
+    names = [m.name for m in models]
+    out = []
+    for pname, p in table.items():
+        where = f"[pools.{pname}]"
+        v = parse_section(PoolSpec, {"name": pname, **_table(path, where, p)}, where, path)
+        if pname in names:
+            raise _err(path, where, f"the pool's name {pname!r} is already a model's; choose another")
+        members = tuple(v.get("members") or names)
+        unknown = [m for m in members if m not in names]
+        if unknown:
+            raise _err(path, f"{where} members", f"{unknown} are not models of this spec; models: "
+                       f"{', '.join(names)}")
+        if len(set(members)) < 2:
+            raise _err(path, f"{where} members", f"a pool needs at least two distinct models; got "
+                       f"{list(members)}")
+        if len(set(members)) != len(members):
+            raise _err(path, f"{where} members", "each model may appear once")
+        try:
+            truth = parse_truth(v.get("truth", "first"))
+        except ValueError as exc:
+            raise _err(path, f"{where} truth", str(exc)) from None
+        if truth.kind == "latest":
+            raise _err(path, f"{where} truth", "'latest' is not a real-time truth (it is fixed only at "
+                       "the store's last release); use first, release:K, lag:NNND or asof:DATE")
+        if v.get("score") is not None and v.get("scheme", "equal") != "inverse_score":
+            raise _err(path, f"{where} score", "applies to scheme = \"inverse_score\" only")
+        out.append(PoolSpec(name=pname, scheme=v.get("scheme", "equal"), members=members,
+                            window=v.get("window"), min_scored=v.get("min_scored", 8),
+                            score=v.get("score"), truth=str(truth)))
+    return tuple(out)
+
+
 def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store: bool = True) -> Spec:
     """Validate an already-parsed spec dictionary (see :func:`load_spec`)."""
     path = Path(path)
@@ -578,6 +621,9 @@ def parse_spec(raw: dict, path: str | Path = "<spec>", *, out=None, check_store:
     variables = _variables_section(raw, path, listed)
     targets = _targets_section(raw, path, variables)
     models = _models_section(raw, path, base)
-    scoring = _scoring_section(raw, path, base, models, variables, run.freq, check_store)
+    pools = _pools_section(raw, path, models)
+    scoring = _scoring_section(raw, path, base, models + tuple(ModelSpec(p.name, f"pool:{p.scheme}", {})
+                                                               for p in pools),
+                               variables, run.freq, check_store)
     return Spec(path=path, raw=raw, run=run, origins=origins, variables=variables, targets=targets,
-                models=models, scoring=scoring)
+                models=models, scoring=scoring, pools=pools)

@@ -143,6 +143,32 @@ class ScoringSection:
         return {s.name: (s.start, s.end) for s in self.subperiods}
 
 
+@dataclass(frozen=True)
+class PoolSpec:
+    """``[pools.NAME]``: a real-time combination of models of the run, scored like a model.
+
+    Weights at each origin use only forecasts whose ``truth`` (a real-time truth rule) had been
+    published by then; until ``min_scored`` such forecasts exist equal weights apply (reported).
+    """
+
+    name: str = key(Text(NAME, "a name"), doc="the pool's name (a new model label)")
+    scheme: str = key(Options("equal", "inverse_score", "optimal"),
+                      doc="equal weights, weights proportional to inverse mean score over a "
+                          "trailing window, or the optimal linear pool (average log score)",
+                      default="equal")
+    members: tuple[str, ...] | None = key(ListOf(Text(NAME, "a model name"), min_len=2), None,
+                                          doc="models to pool (default every model)", default=None)
+    window: int | None = key(Interval(int, 1, 10_000), None,
+                             doc="trailing window of scored forecasts (default all so far)", default=None)
+    min_scored: int = key(Interval(int, 1, 10_000),
+                          doc="scored forecasts needed before learnt weights replace equal ones",
+                          default=8)
+    score: str | None = key(Options("crps", "log_score", "se_mean", "ae_mean"), None,
+                            doc="score of the inverse-score weights (default crps)", default=None)
+    truth: str = key(Text(what="a truth rule"), doc="real-time truth the weights learn from "
+                     "(first, release:K, lag:NNND, asof:DATE; not latest)", default="first")
+
+
 def section_keys(cls) -> dict[str, dict]:
     """``{key: metadata}`` of a section class (its accepted keys, constraints and docs)."""
     return {f.name: dict(f.metadata) for f in fields(cls) if f.metadata}

@@ -1,0 +1,185 @@
+"""Pools in the run: combinations computed after their members, cached like tasks, stored as draws.
+
+After the models' tasks, each ``[pools.NAME]`` of the spec is computed from its members' draws
+(read from the task cache) with weights that, at each origin, use only truths published by then
+(:mod:`harness.pools`). The pool's draws are written per origin in the task format under keys of
+their own, so the ledger gathers them like any model's and they are scored, tested and reported
+the same way. A pool's key hashes its settings, its members' task keys and the truths it learns
+from: when nothing changed, a rerun reads the pool from the cache.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+import zlib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from harness.backtest.ledger import read_task, task_path, write_task
+
+
+@dataclass
+class PoolOutcome:
+    """What computing the pools produced: task records, the weights table and warnings."""
+
+    records: list[dict] = field(default_factory=list)
+    weights: pd.DataFrame | None = None
+    warnings: list[dict] = field(default_factory=list)
+    timings: dict[str, float] = field(default_factory=dict)
+
+
+def _member_draws(plan, cache: Path, members: list[str]) -> np.ndarray:
+    """(M, O, V, H, D) draws of the members from their task files (NaN where a task failed)."""
+    spec = plan.spec
+    o, v, h = len(plan.origins), len(spec.targets.variables), len(spec.targets.horizons)
+    out = np.full((len(members), o, v, h, spec.draws), np.nan, dtype=np.float32)
+    by = {(t.model, t.index): t for t in plan.tasks}
+    for mi, m in enumerate(members):
+        for i in range(o):
+            t = by[(m, i)]
+            if not task_path(cache, t.key).is_file():
+                continue
+            tab, _ = read_task(cache, t.key)
+            vals = tab.column("draws").combine_chunks().flatten().to_numpy().reshape(tab.num_rows, -1)
+            out[mi, i] = vals.reshape(v, h, -1)
+    return out
+
+
+def _truth_table(plan, rule: str) -> pd.DataFrame:
+    from vintages import truth_values
+
+    spec = plan.spec
+    rows = []
+    for var in spec.targets.variables:
+        periods = sorted({str(p) for tg in plan.targets for p in tg.periods()},
+                         key=lambda s: pd.Period(s, freq=spec.freq))
+        vals, rel, _ = truth_values(plan.cube, rule, var, spec.variables[var],
+                                    pd.PeriodIndex(periods, freq=spec.freq), freq=spec.freq)
+        rows.append(pd.DataFrame({"variable": var, "target_period": periods, "truth": vals,
+                                  "truth_release": pd.to_datetime(np.asarray(rel))}))
+    return pd.concat(rows, ignore_index=True)
+
+
+def _pool_key(spec, pool, member_keys: list[str], truths: pd.DataFrame) -> str:
+    h = hashlib.sha256()
+    h.update(json.dumps({"pool": pool.name, "scheme": pool.scheme, "members": list(pool.members),
+                         "window": pool.window, "min_scored": pool.min_scored, "score": pool.score,
+                         "truth": pool.truth, "seed": spec.seed, "draws": spec.draws,
+                         "version": 1}, sort_keys=True).encode())
+    h.update("\n".join(member_keys).encode())
+    h.update(pd.util.hash_pandas_object(truths, index=False).to_numpy().tobytes())
+    return h.hexdigest()[:32]
+
+
+def pool_seed(seed: int, name: str) -> int:
+    """The pool's seed, spawned from the run's seed and the pool's name."""
+    ss = np.random.SeedSequence(int(seed), spawn_key=(zlib.crc32(b"pool"), zlib.crc32(name.encode())))
+    return int(ss.generate_state(1)[0])
+
+
+def compute_pools(plan, cache: Path, records: dict[str, dict]) -> PoolOutcome:
+    """Compute (or read from the cache) every pool of the spec; return task records per origin.
+
+    Parameters
+    ----------
+    plan : Plan
+        With ``plan.cube`` (the store's release index) and the models' tasks.
+    cache : Path
+        The task cache.
+    records : dict
+        The models' task records by key (status of each member task).
+
+    Returns
+    -------
+    PoolOutcome
+        One task record per pool and origin (``model`` = the pool's name), the weights of every
+        pool in one tidy table, and the fallbacks and warnings the pools reported.
+    """
+    from harness.pools import combine
+
+    spec = plan.spec
+    out = PoolOutcome()
+    frames = []
+    for pool in spec.pools:
+        t0 = time.perf_counter()
+        members = list(pool.members)
+        mkeys = [t.key for m in members for t in plan.tasks if t.model == m]
+        truths = _truth_table(plan, pool.truth)
+        pkey = _pool_key(spec, pool, mkeys, truths)
+        okeys = [hashlib.sha256(f"{pkey}:{o}".encode()).hexdigest()[:32] for o in plan.origins]
+        weights_path = Path(cache) / f"{pkey}.pool.parquet"
+        cached = weights_path.is_file() and all(task_path(cache, k).is_file() for k in okeys)
+        if not cached:
+            from harness.pools import truth_grid
+
+            draws = _member_draws(plan, cache, members)
+            tp = _target_period_grid(plan)
+            truth, known = truth_grid(tp, list(spec.targets.variables), truths, pool.truth, spec.freq)
+            kw = {"score": pool.score or "crps"} if pool.scheme == "inverse_score" else {}
+            if pool.scheme != "equal":
+                kw.update(window=pool.window, min_scored=pool.min_scored)
+            res = combine(draws, plan.origins.astype("datetime64[D]"), truth, known, scheme=pool.scheme,
+                          seed=pool_seed(spec.seed, pool.name), **kw,
+                          models=members, variables=list(spec.targets.variables),
+                          horizons=list(spec.targets.horizons), warn=False)
+            for i, (o, k) in enumerate(zip(plan.origins, okeys, strict=True)):
+                import xarray as xr
+
+                da = xr.DataArray(np.moveaxis(res.draws[i], -1, 0).astype(np.float64),
+                                  dims=("draw", "variable", "horizon"),
+                                  coords={"draw": np.arange(spec.draws),
+                                          "variable": list(spec.targets.variables),
+                                          "horizon": list(spec.targets.horizons)})
+                if not np.isfinite(da.values).all():
+                    continue  # no member has a forecast here: the pool has none either
+                write_task(Path(cache), k, da, [str(p) for p in plan.targets[i].periods()],
+                           {"model": pool.name, "origin": str(o), "key": k, "pool": pool.name,
+                            "scheme": pool.scheme, "provenance": {}})
+            w = _weights_table(pool.name, res, plan, members)
+            from vintages import atomic_write_bytes
+
+            atomic_write_bytes(weights_path, w.to_parquet(index=False))
+            warns = [dict(r, pool=pool.name) for r in res.warnings]
+            atomic_write_bytes(Path(cache) / f"{pkey}.pool.json",
+                               (json.dumps({"warnings": warns, "params": res.params}, default=str) + "\n").encode())
+        w = pd.read_parquet(weights_path)
+        meta = json.loads((Path(cache) / f"{pkey}.pool.json").read_text())
+        out.warnings.extend(meta.get("warnings", []))
+        frames.append(w)
+        for o, k in zip(plan.origins, okeys, strict=True):
+            ok = task_path(cache, k).is_file()
+            out.records.append({"model": pool.name, "origin": str(o), "key": k, "cached": cached,
+                                "status": "ok" if ok else "failed", "elapsed": 0.0,
+                                **({} if ok else {"error": "no member has a forecast at this origin"})})
+        out.timings[pool.name] = time.perf_counter() - t0
+    out.weights = pd.concat(frames, ignore_index=True) if frames else None
+    return out
+
+
+def _target_period_grid(plan):
+    import xarray as xr
+
+    tp = np.array([[str(p) for p in tg.periods()] for tg in plan.targets], dtype=object)
+    return xr.DataArray(tp, dims=("origin", "horizon"),
+                        coords={"origin": plan.origins.astype("datetime64[ns]"),
+                                "horizon": list(plan.spec.targets.horizons)})
+
+
+def _weights_table(name: str, res, plan, members: list[str]) -> pd.DataFrame:
+    o, v, h, m = res.weights.shape
+    idx = pd.MultiIndex.from_product([pd.to_datetime(plan.origins.astype("datetime64[D]")),
+                                      list(plan.spec.targets.variables), list(plan.spec.targets.horizons),
+                                      members], names=["origin", "variable", "horizon", "model"])
+    df = idx.to_frame(index=False)
+    df.insert(0, "pool", name)
+    df["weight"] = res.weights.reshape(-1)
+    rep = m
+    df["fallback"] = np.repeat(res.fallback.reshape(-1), rep)
+    df["n_scored"] = np.repeat(res.n_scored.reshape(-1), rep)
+    df["gap"] = np.repeat(res.gap.reshape(-1), rep)
+    return df
