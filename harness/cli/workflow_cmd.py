@@ -80,6 +80,8 @@ def score_cmd(
     out: Annotated[Path | None, typer.Option(help="Write the per-forecast scores to this CSV file "
                                              "(tables beside it).")] = None,
     score: Annotated[str, typer.Option(help="Score shown in the terminal tables: " + _SCORE_CHOICES + ".")] = "crps",
+    benchmark: Annotated[str | None, typer.Option(help="The incumbent every model is set against (a model of the "
+                                                  "run; default the spec's). No refit.")] = None,
 ) -> None:
     """Score a run against a truth (no refitting) and print relative-score tables with tests."""
     from harness.cli._common import USAGE_ERROR, fail
@@ -90,9 +92,12 @@ def score_cmd(
         fail(f"unknown score {score!r}; expected one of {_SCORE_CHOICES}", code=USAGE_ERROR)
 
     from harness.evaluation import evaluate, save, write_forecasts
-    from harness.report.terminal import relative_text
+    from harness.report.terminal import decision_text, relative_text
 
-    ev = evaluate(run_dir, truth)
+    ev = evaluate(run_dir, truth, benchmark=benchmark)
+    from harness.verdicts import decide
+
+    typer.echo(decision_text(decide(ev)))
     typer.echo(relative_text(ev, score))
     typer.echo(f"sub-periods: recession/expansion from {ev.chronology_source}")
     if "Harding" in ev.chronology_source and len(ev.turning_points):
@@ -117,13 +122,16 @@ def sensitivity_cmd(
     backend: Annotated[Backend, typer.Option(help="joblib backend for the pseudo-real-time rerun.")] = Backend.loky,
     out: Annotated[Path | None, typer.Option(help="Directory for the CSV tables (default: RUN/sensitivity).")] = None,
     no_data: Annotated[bool, typer.Option("--no-data-check", help="Skip the pseudo-real-time rerun.")] = False,
+    benchmark: Annotated[str | None, typer.Option(help="The incumbent every model is set against (default the "
+                                                  "spec's). No refit.")] = None,
 ) -> None:
     """How much does the verdict depend on data revisions? Truths side by side, real-time vs revised data."""
     from harness.evaluation.sensitivity import sensitivity
     from harness.spec import load_spec
 
     s = load_spec(spec)
-    res = sensitivity(s, truths=truth or None, jobs=jobs, backend=backend.value, progress=True, data=not no_data)
+    res = sensitivity(s, truths=truth or None, jobs=jobs, backend=backend.value, progress=True, data=not no_data,
+                      benchmark=benchmark)
     dest = res.save(out or (s.out / "sensitivity"))
     typer.echo(res.summary())
     typer.echo(f"tables written to {dest}")
@@ -135,11 +143,13 @@ def report_cmd(
     out: Annotated[Path | None, typer.Option(help="Output directory (default: RUN/report).")] = None,
     since: Annotated[Path | None, typer.Option(help="An earlier run directory: add 'what changed since the last review'.")] = None,
     truth: Annotated[str | None, typer.Option(help="Truth for the tables (default: the spec's).")] = None,
+    benchmark: Annotated[str | None, typer.Option(help="The incumbent of the decision page (a model of the run; "
+                                                  "default the spec's). No refit.")] = None,
 ) -> None:
     """Write the self-contained HTML review report (plus Markdown, LaTeX and CSV tables)."""
     from harness.report.make import make_report
 
-    paths = make_report(run_dir, out=out, since=since, truth=truth, echo=typer.echo)
+    paths = make_report(run_dir, out=out, since=since, truth=truth, echo=typer.echo, benchmark=benchmark)
     typer.echo(f"report: {paths['html']}")
 
 

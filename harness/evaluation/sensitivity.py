@@ -119,7 +119,8 @@ class Sensitivity:
         return path
 
 
-def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subperiod: str = "full"):
+def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subperiod: str = "full",
+                      benchmark: str | None = None):
     """Score one ledger under several truths; return (ratio table, rankings, evaluations by truth)."""
     from harness.backtest.ledger import Ledger, read_ledger
     from harness.evaluation import evaluate
@@ -127,7 +128,7 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
 
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
     cube = VintageStore(ledger.manifest.store).cube(variables=list(ledger.manifest.variables))
-    evs = {t: evaluate(ledger, t, cube=cube, tests=False) for t in truths}
+    evs = {t: evaluate(ledger, t, cube=cube, tests=False, benchmark=benchmark) for t in truths}
     rows = []
     for t, ev in evs.items():
         tab = ev.table[ev.table["subperiod"] == subperiod]
@@ -159,7 +160,7 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
     pseudo_spec = spec.with_run(mode="pseudo", out=spec.out.parent / (spec.out.name + "-pseudo"),
                                 cache=spec.cache_dir)
     res = run(pseudo_spec, jobs=jobs, backend=backend, progress=progress, log=log)
-    pseudo = evaluate(res.run_dir, truth, tests=False)  # its own ledger; the store is the same
+    pseudo = evaluate(res.run_dir, truth, tests=False, benchmark=real_eval.benchmark)  # its own ledger
     key = ["model", "origin", "variable", "horizon"]
     a = real_eval.forecasts[key + [score]]
     b = pseudo.forecasts[key + [score]]
@@ -213,51 +214,70 @@ def revision_exposure(evs: dict, benchmark: str, truths) -> pd.DataFrame:
 
 
 def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
+    """Two separate statements per model, plus the revised-data check.
+
+    * **beats the benchmark under every truth**: in how many variable × horizon cells its CRPS
+      ratio to the benchmark is below 1 under every truth (and which cells flip);
+    * **ranking stable across truths**: in which cells the leading model (lowest mean CRPS of
+      all models) changes with the truth, naming the leaders.
+    """
     rows = []
+    scored = truth_table[np.isfinite(truth_table["score"].to_numpy(dtype=float))] if len(truth_table) else truth_table
+    lead = (scored.loc[scored.groupby(["variable", "horizon", "truth"], sort=False)["score"].idxmin()]
+            if len(scored) else scored)
+    leaders = lead.pivot_table(index=["variable", "horizon"], columns="truth", values="model",
+                               aggfunc="first") if len(lead) else pd.DataFrame()
+    changing = leaders[leaders.nunique(axis=1) > 1] if len(leaders) else leaders
+    leader_text = ("the leading model is the same under every truth in every cell" if not len(changing)
+                   else f"the leading model changes with the truth in {len(changing)} of {len(leaders)} cells ("
+                   + "; ".join(f"{v} h={h}: " + ", ".join(f"{t} {m}" for t, m in r.items() if isinstance(m, str))
+                               for (v, h), r in list(changing.iterrows())[:4])
+                   + ("…" if len(changing) > 4 else "") + ")")
     for model, g in truth_table.groupby("model", sort=False):
         if model == benchmark:
             continue
         wins = g.assign(win=g["ratio"] < 1).pivot_table(index=["variable", "horizon"], columns="truth",
                                                          values="win", aggfunc="first")
-        stable = wins.nunique(axis=1).eq(1)
-        share_truth = float(stable.mean()) if len(stable) else np.nan
-        flips = [f"{v} h={h}" for (v, h), s in stable.items() if not s]
+        always = wins.all(axis=1)
+        flips = [f"{v} h={h}" for (v, h), s in wins.nunique(axis=1).eq(1).items() if not s]
         d = data_table[data_table["model"] == model] if len(data_table) else pd.DataFrame()
-        parts = []
-        if share_truth == 1.0:
-            parts.append("win/lose verdict against the benchmark identical under every truth")
-        else:
-            parts.append(f"verdict against the benchmark changes with the truth in {len(flips)} of "
-                         f"{len(stable)} cells ({', '.join(flips[:4])}{'…' if len(flips) > 4 else ''})")
-        data_flips = 0
+        beats = f"beats {benchmark} under every truth in {int(always.sum())} of {len(always)} cells"
+        if flips:
+            beats += f"; win/lose flips with the truth in {', '.join(flips[:4])}{'…' if len(flips) > 4 else ''}"
+        data_flips = int(d["verdict_flips"].sum()) if len(d) else 0
+        parts = [beats]
         if len(d):
-            data_flips = int(d["verdict_flips"].sum())
-            sig = d[d["pvalue"] < alpha]
             if data_flips == 0:
-                parts.append("same verdict with real-time and with revised (pseudo-real-time) data")
+                parts.append("same win/lose with real-time and with revised (pseudo-real-time) data")
             else:
                 cells = ", ".join(f"{r.variable} h={r.horizon}" for r in d[d["verdict_flips"]].itertuples())
-                parts.append(f"verdict changes with revised data in {data_flips} of {len(d)} cells ({cells})")
+                parts.append(f"win/lose changes with revised data in {data_flips} of {len(d)} cells ({cells})")
+            sig = d[d["pvalue"] < alpha]
             if len(sig):
                 direction = "worse" if sig["difference"].mean() > 0 else "better"
                 parts.append(f"its real-time CRPS is significantly {direction} than with revised data in "
                              f"{len(sig)} of {len(d)} cells (DM, {int(alpha * 100)}%)")
-        robust = share_truth == 1.0 and data_flips == 0
-        rows.append(dict(model=model, robust=robust,
-                         verdict=("ROBUST: " if robust else "NOT ROBUST: ") + "; ".join(parts)))
+        rows.append(dict(model=model, beats_every_truth=bool(always.all()) if len(always) else False,
+                         cells_beaten_every_truth=int(always.sum()), cells=int(len(always)),
+                         ranking_stable=not len(changing), leader_changes=int(len(changing)),
+                         verdict="; ".join(parts) + f"; {leader_text}"))
     return pd.DataFrame(rows)
 
 
 def sensitivity(spec, *, truths=None, run_dir=None, jobs=None, backend="loky", progress=False, log=None,
-                data: bool = True) -> Sensitivity:
-    """Run all three checks for a spec whose real-time run exists (or is run now)."""
+                data: bool = True, benchmark: str | None = None) -> Sensitivity:
+    """Run all three checks for a spec whose real-time run exists (or is run now).
+
+    ``benchmark`` sets the incumbent every model is compared with (default the spec's); it needs
+    no refit.
+    """
     from harness.backtest import run
 
     truths = tuple(truths or spec.scoring.truths or DEFAULT_TRUTHS)
     if run_dir is None:
         res = run(spec, jobs=jobs, backend=backend, progress=progress, log=log)
         run_dir = res.run_dir
-    table, rankings, evs = truth_sensitivity(run_dir, truths)
+    table, rankings, evs = truth_sensitivity(run_dir, truths, benchmark=benchmark)
     benchmark = evs[truths[0]].benchmark
     if data and spec.mode == "real-time":
         dtable, _, pres = data_sensitivity(spec, evs[truths[0]], truth=truths[0], jobs=jobs, backend=backend,

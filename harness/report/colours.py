@@ -31,6 +31,29 @@ def stars(p) -> str:
     return ""
 
 
+#: direction signs of a significant comparison (text twins: they survive grey print and plain text)
+SIG_BETTER = "\u2193"  # ↓ significantly lower loss than the benchmark
+SIG_WORSE = "\u2191"  # ↑ significantly higher loss than the benchmark
+
+
+def significance(p, direction: float | None = None) -> str:
+    """Directional significance mark: ``↓**`` significantly better (lower loss), ``↑**`` worse.
+
+    Stars give the level (``***`` 1 %, ``**`` 5 %, ``*`` 10 %); the arrow the direction of the
+    mean loss difference (``direction`` < 0: the model's loss is lower). Without a direction
+    (e.g. a calibration test, where stars mean "rejected") only the stars are given.
+
+    Examples
+    --------
+    >>> significance(0.004, -0.2), significance(0.03, 0.1), significance(0.5, -1.0)
+    ('↓***', '↑**', '')
+    """
+    s = stars(p)
+    if not s or direction is None or not np.isfinite(direction) or direction == 0:
+        return s
+    return (SIG_BETTER if direction < 0 else SIG_WORSE) + s
+
+
 def ratio_level(ratio) -> np.ndarray:
     """Signed colour level of ratios: 0 near 1, -1…-4 better (below 1), +1…+4 worse.
 

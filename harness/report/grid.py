@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from harness.report.colours import ratio_colour, ratio_marker, stars
+from harness.report.colours import ratio_colour, ratio_marker, significance, stars
 from harness.report.escape import escape_html, escape_latex, escape_markdown, fmt_number
 
 
@@ -107,6 +107,12 @@ class GridTable:
                 for j, c in enumerate(cells):
                     c.best = bool(flag[i, j])
 
+    def _mark(self, c: Cell) -> str:
+        """Significance mark of a cell: directional for ratio cells (↓ better, ↑ worse), stars otherwise."""
+        if self.kind == "ratio":
+            return significance(c.pvalue, (c.value - 1.0) if c.value == c.value else None)
+        return stars(c.pvalue)
+
     def label(self, level: int, value: str) -> str:
         return str(self.column_labels.get(value, value))
 
@@ -120,7 +126,8 @@ class GridTable:
                     rec = dict(g.key)
                     rec[self.row_name] = row
                     rec.update(dict(zip(self.column_levels, col, strict=True)))
-                    rec.update(value=c.value, n=c.n, pvalue=c.pvalue, stars=stars(c.pvalue), best=c.best)
+                    rec.update(value=c.value, n=c.n, pvalue=c.pvalue, stars=stars(c.pvalue),
+                               mark=self._mark(c), best=c.best)
                     recs.append(rec)
         return pd.DataFrame(recs)
 
@@ -184,7 +191,7 @@ class GridTable:
             style = f' style="background:{ratio_colour(c.value)}"'
             m = ratio_marker(c.value)
             mark = f'<span class="dir">{m}</span>' if m else ""
-        sig = stars(c.pvalue)
+        sig = self._mark(c)
         sig_html = f'<span class="sig">{sig}</span>' if sig else ""
         n_html = f'<span class="n">n={c.n}</span>' if c.n is not None else ""
         title = f' title="{e("; ".join(tip))}"' if tip else ""
@@ -205,7 +212,7 @@ class GridTable:
                 for c in cells:
                     t = fmt_number(c.value, self.digits)
                     t = f"**{t}**" if c.best and t != "\u2014" else t
-                    s = stars(c.pvalue)
+                    s = self._mark(c)
                     t += escape_markdown(s)
                     if c.n is not None:
                         t += f" (n={c.n})"
@@ -241,7 +248,7 @@ class GridTable:
                         vals.append("--")
                         continue
                     t = f"\\textbf{{{t}}}" if c.best else t
-                    s = stars(c.pvalue)
+                    s = self._mark(c)
                     if s:
                         t += f"$^{{{s}}}$"
                     if c.n is not None:

@@ -85,7 +85,7 @@ def _section(sid: str, title: str, body: str) -> str:
 
 
 def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_truths: dict | None = None,
-                 since=None, title: str | None = None) -> dict[str, Path]:
+                 since=None, title: str | None = None, verdicts=None) -> dict[str, Path]:
     """Write the review report for one evaluated run.
 
     Parameters
@@ -101,6 +101,8 @@ def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_trut
     fan_truths : dict of str to Evaluation, optional
         Outcomes drawn on the fan charts (e.g. ``{"first": ev_first, "latest": ev_latest}``);
         default the evaluation's own truth.
+    verdicts : harness.verdicts.Verdicts, optional
+        The decision table (default: decided here from the evaluation, sensitivity and since).
     since : harness.evaluation.Evaluation, optional
         The evaluation shown at the last review; adds the "What changed" section.
     title : str, optional
@@ -117,7 +119,11 @@ def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_trut
     ev = evaluation
     variables = _variables(ev)
     title = title or f"Model review: {manifest_value(ev, 'name') or ev.run_dir}"
-    ctx = ReportContext(rep, ev, variables, ledger, fan_truths, sensitivity, since)
+    if verdicts is None:
+        from harness.verdicts import decide
+
+        verdicts = decide(ev, sensitivity=sensitivity, since=since)
+    ctx = ReportContext(rep, ev, variables, ledger, fan_truths, sensitivity, since, verdicts)
     built, md = [], [f"# {escape_markdown(title)}", ""]
     for sec in SECTIONS:
         if not sec.include(ctx):

@@ -28,22 +28,28 @@ def load_sensitivity(path: str | Path):
                        rd("sensitivity_verdicts.csv"), truths, None)
 
 
-def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, evaluation=None, echo=print) -> dict:
-    """Evaluate ``run_dir`` and write its review report; return the written paths."""
+def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, evaluation=None, echo=print,
+                benchmark: str | None = None) -> dict:
+    """Evaluate ``run_dir`` and write its review report; return the written paths.
+
+    ``benchmark`` chooses the incumbent the decision page sets every model against (default the
+    spec's); no refit is needed.
+    """
     from harness.backtest.ledger import read_ledger
     from harness.evaluation import evaluate
     from harness.report import build_report
 
     run_dir = Path(run_dir)
     ledger = read_ledger(run_dir)
-    ev = evaluation or evaluate(ledger, truth)
+    ev = evaluation or evaluate(ledger, truth, benchmark=benchmark)
     if sensitivity is None:
         sensitivity = load_sensitivity(run_dir / "sensitivity")
     # fan charts need the outcomes under the first and latest truths: reuse what the
     # sensitivity check already scored
     known = dict(getattr(sensitivity, "evaluations", None) or {}, **{ev.truth: ev})
-    fan = {t: known[t] if t in known else evaluate(ledger, t, tests=False) for t in ("first", "latest")}
-    earlier = evaluate(Path(since), ev.truth) if since else None
+    fan = {t: known[t] if t in known else evaluate(ledger, t, tests=False, benchmark=ev.benchmark)
+           for t in ("first", "latest")}
+    earlier = evaluate(Path(since), ev.truth, benchmark=ev.benchmark) if since else None
     out = Path(out) if out else run_dir / "report"
     paths = build_report(ev, out, sensitivity=sensitivity, ledger=ledger, fan_truths=fan, since=earlier)
     paths.setdefault("html", out / "report.html")

@@ -22,7 +22,7 @@ from harness.report.changes import DEFAULT_THRESHOLD, changes
 from harness.report.colours import MARK_BETTER, MARK_WORSE, PALETTE, RATIO_STEPS, STAR_LEVELS
 from harness.report.escape import escape_html
 from harness.report.grid import FrameTable
-from harness.report.headline import format_horizons, headline
+from harness.report.headline import format_horizons
 from harness.scores import resolve
 
 CAUTION = ("These results describe how the models would have performed in the past, on the sample, "
@@ -131,17 +131,33 @@ def _legend() -> str:
             f"{MARK_BETTER} = lower loss than the benchmark, orange {MARK_WORSE} = higher loss; the darker the "
             "cell, the larger the difference (equal lightness for equal ratios on both sides, so the scale "
             "reads in grey print; the markers carry the direction). <strong>Bold</strong>: best (lowest) in "
-            "its column for that horizon. Stars: HLN-corrected Diebold–Mariano test of equal accuracy "
-            f"against the benchmark, {stars}. n: number of forecasts behind the cell.</p></div>")
+            "its column for that horizon. Marks: the registered pairwise test of equal accuracy against the "
+            f"benchmark, \u2193 significantly lower loss, \u2191 significantly higher, {stars}; no mark where "
+            "n is too small to test. n: number of forecasts behind the cell.</p></div>")
 
 
-def _summary(rep, ev, variables) -> str:
-    items = "".join(f"<li>{escape_html(headline(ev, v))}</li>" for v in variables)
-    body = [f'<ul class="headline">{items}</ul>',
-            _p("Each verdict is derived from the tables below: lowest mean CRPS over the full sample per "
-               "horizon, HLN-DM tests against the benchmark, recession sub-sample, model confidence set.",
-               "note"),
-            _p("Caution: " + CAUTION, "note"),
+def decision_frame(verdicts) -> pd.DataFrame:
+    """The decision table as shown: one row per candidate × variable × band, typed columns."""
+    t = verdicts.table
+    if t is None or not len(t):
+        return pd.DataFrame()
+    cols = ["variable", "band", "model", "verdict", "ratio", "pvalue", "n", "in_best_set", "calibration",
+            "beats_every_truth", "leader_stable", "change", "reasons"]
+    return t[[c for c in cols if c in t.columns]].reset_index(drop=True)
+
+
+def _summary(rep, ev, variables, verdicts=None) -> str:
+    from harness.verdicts import statements
+
+    body = []
+    if verdicts is not None:
+        items = "".join(f"<li>{escape_html(s.text)}</li>" for s in statements(verdicts))
+        body += [f'<ul class="headline">{items}</ul>',
+                 rep.table(FrameTable("decision", f"Decision table against {verdicts.benchmark} "
+                                      f"({verdicts.score.upper()}, truth '{verdicts.truth}')",
+                                      decision_frame(verdicts), notes=list(verdicts.notes),
+                                      pvalue_columns=()))]
+    body += [_p("Caution: " + CAUTION, "note"),
             "<h3>What was run</h3>", rep.table(FrameTable("run_summary", "What was run", _run_frame(ev)))]
     versions = manifest_value(ev, "versions", None) or {}
     if versions:
@@ -262,11 +278,13 @@ def _sensitivity(rep, ev, sens, variables) -> str:
     v = sens.verdicts
     if v is not None and len(v):
         vf = v.copy()
-        if "robust" in vf:
-            # Read back from CSV the flag may be text; "False" must not count as true.
-            vf["robust"] = vf["robust"].map(lambda x: str(x).strip().lower() in ("true", "1", "yes"))
-        body.append(_p("Does the verdict against the benchmark survive the choice of truth and the use of "
-                       "real-time rather than revised data? ROBUST: the same under every check."))
+        for flag in ("beats_every_truth", "ranking_stable"):
+            if flag in vf:
+                # read back from CSV a flag may be text; "False" must not count as true
+                vf[flag] = vf[flag].map(lambda x: str(x).strip().lower() in ("true", "1", "yes"))
+        body.append(_p("Two separate questions: does each model beat the benchmark under every truth "
+                       "(cells counted), and does the leading model stay the same across truths (cells "
+                       "where it changes are named)? Then the same against revised data."))
         body.append(rep.table(FrameTable("sensitivity_verdicts", "Revision-sensitivity verdicts", vf)))
     body += [rep.table(t) for t in sensitivity_ratio_tables(sens, ev.benchmark, variables)]
     for attr, name, title, pcols in (
@@ -337,6 +355,7 @@ class ReportContext:
     fan_truths: dict | None = None
     sensitivity: object = None
     since: object = None
+    verdicts: object = None
 
 
 @dataclass(frozen=True)
@@ -351,7 +370,7 @@ class Section:
 
 #: the report's sections, in order: the table of contents, the HTML and the Markdown follow it
 SECTIONS: tuple[Section, ...] = (
-    Section("summary", "Summary", lambda c: _summary(c.writer, c.evaluation, c.variables)),
+    Section("summary", "Summary", lambda c: _summary(c.writer, c.evaluation, c.variables, c.verdicts)),
     Section("relative-scores", "Relative scores", lambda c: _relative(c.writer, c.evaluation, c.variables)),
     Section("tails", "Tails", lambda c: _tails(c.writer, c.evaluation, c.variables)),
     Section("over-time", "Performance over time", lambda c: _over_time(c.writer, c.evaluation, c.variables)),

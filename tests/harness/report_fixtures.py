@@ -462,9 +462,8 @@ def _sensitivity(evs: dict[str, Evaluation], benchmark: str, rng: np.random.Gene
     for m in [x for x in pd.unique(truth_table["model"]) if x != benchmark]:
         g = truth_table[truth_table["model"] == m]
         stable = g.assign(win=g["ratio"] < 1).groupby(["variable", "horizon"])["win"].nunique().eq(1)
-        robust = bool(stable.all())
-        verdicts.append(dict(model=m, robust=robust, verdict=("ROBUST: " if robust else "NOT ROBUST: ")
-                             + f"win/lose verdict stable in {int(stable.sum())} of {len(stable)} cells"))
+        verdicts.append(dict(model=m, beats_every_truth=bool(stable.all()), ranking_stable=bool(stable.all()),
+                             verdict=f"win/lose verdict stable in {int(stable.sum())} of {len(stable)} cells"))
     return Sensitivity(truth_table, rankings, dt, exposure, pd.DataFrame(verdicts), truths, None)
 
 

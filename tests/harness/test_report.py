@@ -305,6 +305,9 @@ def test_stars_follow_the_test_pvalues(report, bundle):
             want = "***" if p < 0.01 else "**" if p < 0.05 else "*" if p < 0.10 else ""
             got = "" if pd.isna(r.stars) else r.stars
             assert got == want
+            # the printed mark carries the direction: ↓ lower loss than the benchmark, ↑ higher
+            mark = "" if pd.isna(r.mark) else r.mark
+            assert mark == ((("\u2193" if r.value < 1 else "\u2191") + want) if want else "")
             seen.add(want)
     assert {"*", "**", "***", ""} <= seen  # the fixture exercises every level
 

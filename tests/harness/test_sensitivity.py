@@ -95,7 +95,7 @@ def test_without_revisions_all_truths_and_data_modes_agree(tmp_path):
         assert np.array_equal(other.to_numpy(), base.reindex(other.index).to_numpy()), t
     assert (res.data_table["difference"].abs() < 1e-12).all()
     assert res.rankings["n_swaps"].sum() == 0
-    assert res.verdicts["robust"].all()
+    assert res.verdicts["ranking_stable"].all()
     assert (res.exposure["mean_abs_revision"].fillna(0) == 0).all()
 
 
