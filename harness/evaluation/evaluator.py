@@ -25,8 +25,9 @@ class Evaluation:
     Attributes
     ----------
     forecasts : DataFrame
-        One row per forecast: model, origin, variable, horizon, target_period, truth,
-        truth_release, missing_reason, subperiods (list), and every score column.
+        One row per forecast: model, origin, variable, horizon, target_period, ``ok`` (the
+        forecast exists), truth, truth_release, missing_reason, ``scored`` (a truth is published,
+        so the forecast is scored), subperiods (list), and every score column.
     table : DataFrame
         Mean scores per model × variable × horizon × subperiod with ``n`` forecasts behind each.
     relative : DataFrame
@@ -171,6 +172,8 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     scores = score_all(obs, draws, **kw)
     for k, v in scores.items():
         fc[k] = v
+    # "ok": the forecast exists; "scored": it also has a published truth (what every count uses)
+    fc["scored"] = np.isfinite(fc["truth"].to_numpy(dtype=np.float64))
     all_periods = pd.PeriodIndex(sorted({pd.Period(p, freq=freq) for p in fc["target_period"]}), freq=freq)
     reg, chron_src, tps = regimes_for(man, cube, all_periods)
     sub = scoring.subperiod_map

@@ -36,3 +36,16 @@ def test_score_refuses_an_unknown_truth(tmp_path, small_store):
     res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "final"])
     assert res.exit_code == 1
     assert res.output.startswith("error:") and "first" in res.output and "latest" in res.output
+
+
+def test_forecasts_without_a_truth_are_not_counted_as_scored(tmp_path, small_store):
+    """A forecast whose truth is not yet published is 'ok' (it exists) but not 'scored'; counts agree."""
+    spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
+    run(spec, jobs=1, progress=False)
+    ev = evaluate(spec.out, "release:3")
+    f = ev.forecasts
+    assert (~f["scored"]).any() and f.loc[~f["scored"], "crps"].isna().all()
+    cell = f[(f.model == "ar") & (f.variable == "gdp") & (f.horizon == 1)]
+    n = ev.table[(ev.table.model == "ar") & (ev.table.variable == "gdp") & (ev.table.horizon == 1)
+                 & (ev.table.subperiod == "full")]["n"].iloc[0]
+    assert int(cell["scored"].sum()) == n and int(cell["cover_90"].notna().sum()) == n
