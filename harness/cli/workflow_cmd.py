@@ -153,6 +153,34 @@ def report_cmd(
     typer.echo(f"report: {paths['html']}")
 
 
+@friendly
+def news_cmd(
+    run_dir: RunArg,
+    model: Annotated[str | None, typer.Option(help="A model of the run of type dfm or bvar (default the first).")] = None,
+    target: Annotated[str | None, typer.Option(help="Target variable (default the first).")] = None,
+    horizon: Annotated[int, typer.Option(help="Horizon relative to the later origin's quarter (0 = nowcast).")] = 0,
+    origins: Annotated[tuple[str, str] | None, typer.Option(help="Two origins of the run, earlier first "
+                                                          "(default the last two).")] = None,
+    fmt: Annotated[str, typer.Option("--format", help="text or csv.")] = "text",
+) -> None:
+    """Which release moved the forecast: split its change between two origins into news, revisions and re-estimation."""
+    from harness.cli._common import USAGE_ERROR, fail
+
+    if fmt not in ("text", "csv"):
+        fail(f"unknown format {fmt!r}; expected one of csv, text", code=USAGE_ERROR)
+    from harness.evaluation.news import news_for_run
+    from harness.models.news import news_table
+
+    frame = news_for_run(run_dir, model=model, target=target, horizon=horizon,
+                         origins=tuple(origins) if origins else None)
+    if fmt == "csv":
+        import sys
+
+        sys.stdout.write(frame.to_csv(index=False))
+    else:
+        typer.echo(news_table(frame))
+
+
 def register(app: typer.Typer) -> None:
     """Attach the workflow commands to the top-level app."""
     app.command("run")(run_cmd)
@@ -160,3 +188,4 @@ def register(app: typer.Typer) -> None:
     app.command("sensitivity")(sensitivity_cmd)
     app.command("report")(report_cmd)
     app.command("demo")(demo_cmd)
+    app.command("news")(news_cmd)
