@@ -105,7 +105,7 @@ def regimes_for(manifest, cube, periods: pd.PeriodIndex) -> tuple[pd.Series, str
 
 def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, cube=None,
              benchmark: str | None = None, dm_scores=None, tests: bool = True,
-             seed: int | None = None, test_settings: dict | None = None) -> Evaluation:
+             seed: int | None = None, test_settings: dict | None = None, cache: bool = True) -> Evaluation:
     """Score a run against one truth rule.
 
     Parameters
@@ -134,22 +134,39 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     test_settings : dict, optional
         ``{test name: {setting: value}}`` overriding the registered defaults (e.g. the number
         of bootstrap replications); default the spec's ``[scoring.tests]``.
+    cache : bool
+        Read the evaluation from, and write it to, the run directory's evaluation cache
+        (:mod:`harness.evaluation.cache`): scoring a run again under the same truth, store and
+        settings reads the tables back instead of recomputing them.
 
     Returns
     -------
     Evaluation
     """
+    from harness.backtest.manifest import RunManifest
+    from harness.evaluation import cache as ecache
     from harness.evaluation import cells
     from harness.scores import aggregate, assign_subperiods, common_sample, relative_to, score_all
     from vintages import VintageStore, parse_truth
 
-    ledger = run if isinstance(run, Ledger) else read_ledger(run)
-    man = ledger.manifest
+    man = run.manifest if isinstance(run, Ledger) else RunManifest.read(run)
+    run_dir = Path(run.run_dir if isinstance(run, Ledger) else run)
     scoring = man.scoring
     truth = str(parse_truth(truth or scoring.truth or "first"))
     benchmark = benchmark or man.benchmark
     if benchmark not in man.models:
         raise ValueError(f"unknown benchmark {benchmark!r}; models of this run: {list(man.models)}")
+    key = None
+    if cache:
+        checksum = cube.checksum if cube is not None and getattr(cube, "checksum", None) else \
+            (store or VintageStore(man.store)).checksum()
+        key = ecache.evaluation_key(man, checksum, truth=truth, benchmark=benchmark,
+                                    dm_scores=None if dm_scores is None else list(dm_scores), tests=tests,
+                                    seed=seed, test_settings=test_settings)
+        hit = ecache.load(run_dir, key, man)
+        if hit is not None:
+            return hit
+    ledger = run if isinstance(run, Ledger) else read_ledger(run)
     freq = man.freq
     if cube is None:
         store = store or VintageStore(man.store)
@@ -202,5 +219,11 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     else:
         dm = mcs = calib = fluct = pd.DataFrame()
     names = ["full"] + list(sub) + ["recession", "expansion"]
-    return Evaluation(Path(ledger.run_dir), truth, benchmark, fc, table, relative, dm, mcs, calib, fluct, reg,
-                      chron_src, tps, names, man)
+    ev = Evaluation(Path(ledger.run_dir), truth, benchmark, fc, table, relative, dm, mcs, calib, fluct, reg,
+                    chron_src, tps, names, man)
+    if key is not None:
+        try:
+            ecache.store(run_dir, key, ev)
+        except OSError:  # a read-only run directory: the evaluation is still returned
+            pass
+    return ev
