@@ -95,6 +95,8 @@ _PUBLIC: dict[str, str] = {
     "harding_pagan": "vintages.chronology",
     # long-run variances (shared with the comparison tests)
     "KERNELS": "vintages.hac",
+    "daniell_covariance": "vintages.hac",
+    "daniell_variance": "vintages.hac",
     "Kernel": "vintages.hac",
     "kernel_weights": "vintages.hac",
     "long_run_covariance": "vintages.hac",

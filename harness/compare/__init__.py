@@ -11,8 +11,17 @@ from __future__ import annotations
 
 from harness.compare._checks import ALTERNATIVES, Alternative
 from harness.compare.bootstrap import BOOTSTRAPS, Bootstrap, bootstrap_indices
-from harness.compare.coverage import CoverageResult, christoffersen, kupiec
-from harness.compare.dm import DMResult, diebold_mariano, hln_factor
+from harness.compare.coverage import CoverageResult, christoffersen, coverage_t, kupiec
+from harness.compare.dm import (
+    DM_LABELS,
+    DM_METHODS,
+    RELATIVE_TOLERANCE,
+    DMMethod,
+    DMResult,
+    diebold_mariano,
+    dm_min_n,
+    hln_factor,
+)
 from harness.compare.fluctuation import (
     FLUCTUATION_CV,
     FluctuationResult,
@@ -25,17 +34,22 @@ from harness.compare.pit import (
     KS_CV,
     BerkowitzResult,
     PITUniformityResult,
+    RawMomentResult,
     berkowitz,
     cvm_limit_cdf,
+    knuppel,
     pit_histogram,
     rossi_sekhposyan,
 )
-from vintages import KERNELS, Kernel, long_run_variance
+from vintages import KERNELS, Kernel, daniell_covariance, daniell_variance, long_run_variance
 
 __all__ = [
     "ALTERNATIVES",
     "BOOTSTRAPS",
     "CVM_CV",
+    "DM_LABELS",
+    "DM_METHODS",
+    "RELATIVE_TOLERANCE",
     "FLUCTUATION_CV",
     "KERNELS",
     "KS_CV",
@@ -44,19 +58,26 @@ __all__ = [
     "BerkowitzResult",
     "Bootstrap",
     "CoverageResult",
+    "DMMethod",
     "DMResult",
     "FluctuationResult",
     "Kernel",
     "MCSResult",
     "MCSStatistic",
     "PITUniformityResult",
+    "RawMomentResult",
     "berkowitz",
     "bootstrap_indices",
     "christoffersen",
+    "coverage_t",
     "cvm_limit_cdf",
+    "daniell_covariance",
+    "daniell_variance",
     "diebold_mariano",
+    "dm_min_n",
     "fluctuation_test",
     "hln_factor",
+    "knuppel",
     "kupiec",
     "long_run_variance",
     "model_confidence_set",

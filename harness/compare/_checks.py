@@ -33,12 +33,14 @@ def _check_int(value, name: str, where: str, minimum: int) -> int:
 
 
 def _pvalue(stat: float, cdf, alternative: str) -> float:
-    """p-value of ``stat`` under a symmetric null law with CDF ``cdf``."""
+    """p-value of ``stat`` under a symmetric null law with CDF ``cdf`` (clipped to [0, 1])."""
     if alternative == "two-sided":
-        return float(2.0 * cdf(-abs(stat)))
-    if alternative == "less":
-        return float(cdf(stat))
-    return float(cdf(-stat))
+        p = 2.0 * cdf(-abs(stat))
+    elif alternative == "less":
+        p = cdf(stat)
+    else:
+        p = cdf(-stat)
+    return float(min(max(float(p), 0.0), 1.0))
 
 
 def t_cdf(df: float):

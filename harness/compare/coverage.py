@@ -1,8 +1,9 @@
-"""Tests of interval coverage: Kupiec (unconditional) and Christoffersen (independence, conditional)."""
+"""Tests of interval coverage: Kupiec (unconditional), Christoffersen (independence, conditional),
+and a hit-rate t-test with a long-run variance for overlapping (h > 1) forecasts."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy import special
@@ -128,3 +129,49 @@ def christoffersen(hits, coverage: float) -> CoverageResult:
     return CoverageResult(base.lr_uc, base.p_uc, base.n, base.hit_rate, coverage, lr_ind,
                           (chi2_sf(lr_ind, 1)), lr_cc, (chi2_sf(lr_cc, 2)),
                           counts)
+
+
+def coverage_t(hits, coverage: float, h: int = 1, *, method: str = "fixed_m",
+               bandwidth: int | None = None, positions=None):
+    """t-test of the hit rate with a long-run variance of the hits, valid for overlapping forecasts.
+
+    ``stat = sqrt(T) (pi_hat - c) / sqrt(Omega)`` with ``Omega`` the long-run variance of the
+    hit indicators; this is the Diebold-Mariano machinery of
+    :func:`harness.compare.diebold_mariano` applied to ``hit_t - c`` (the same ``method``:
+    default the fixed-m Daniell estimate with Student-t(2m)), so h-step interval forecasts,
+    whose hits are serially dependent up to lag h - 1, keep their size where the Kupiec and
+    Christoffersen tests (which assume independent hits) do not.
+
+    Parameters
+    ----------
+    hits : array_like of {0, 1, NaN}, shape (T,)
+        Hit indicators in time order; NaN dropped.
+    coverage : float
+        Nominal probability of a hit c.
+    h : int
+        Forecast horizon in steps.
+    method, bandwidth, positions
+        As in :func:`harness.compare.diebold_mariano`.
+
+    Returns
+    -------
+    harness.compare.DMResult
+        ``mean_diff`` is ``pi_hat - c``; NaN with a note when every forecast hit (or every one
+        missed): the long-run variance is then zero.
+
+    References
+    ----------
+    Common practice (a t-test of the mean hit indicator with a HAC variance, e.g. for
+    multi-step interval forecasts); the long-run variance and its small-sample reference law as
+    in Coroneo, L. and Iacone, F. (2020). Journal of Applied Econometrics 35(4), 391-409.
+    """
+    from harness.compare.dm import diebold_mariano
+
+    x = _hits(hits, coverage, "coverage_t")
+    res = diebold_mariano(x, np.where(np.isnan(x), np.nan, coverage), h, method=method,
+                          bandwidth=bandwidth, positions=positions)
+    if res.note.startswith("the loss differential is (numerically) constant"):
+        kind = "hit" if res.mean_diff > 0 else "missed"
+        res = replace(res, note=f"every forecast {kind} the interval: no variation in the hits; "
+                                "the test is undefined")
+    return res

@@ -10,6 +10,7 @@ from typing import Literal
 import numpy as np
 
 from harness.compare._checks import _check_choice, _check_int, _pairs
+from harness.compare.dm import RELATIVE_TOLERANCE
 from vintages import KERNELS, Kernel, long_run_variance
 
 # Giacomini & Rossi (2010, Journal of Applied Econometrics 25(4), Table I): two-sided critical
@@ -109,7 +110,8 @@ class FluctuationResult:
 
 def fluctuation_test(loss_a, loss_b, mu: float = 0.3, alpha: float = 0.05, *, h: int = 1,
                      kernel: Kernel = "rectangular", critical: Literal["table", "simulate"] = "table",
-                     n_sim: int = 20_000, n_grid: int = 500, seed: int = 0) -> FluctuationResult:
+                     n_sim: int = 20_000, n_grid: int = 500, seed: int = 0,
+                     positions=None) -> FluctuationResult:
     """Giacomini-Rossi Fluctuation test: rolling-window DM statistics against a sup bound.
 
     With P complete pairs and window ``m = round(mu P)``, the path is
@@ -133,6 +135,9 @@ def fluctuation_test(loss_a, loss_b, mu: float = 0.3, alpha: float = 0.05, *, h:
         Giacomini & Rossi's Table I, or :func:`simulate_fluctuation_cv`.
     n_sim, n_grid, seed : int
         Passed to :func:`simulate_fluctuation_cv`.
+    positions : array_like of int, shape (P,), optional
+        Time positions of the pairs (before NaN pairs are dropped), so that the long-run
+        variance pairs only forecasts that really are j periods apart.
 
     Returns
     -------
@@ -167,16 +172,26 @@ def fluctuation_test(loss_a, loss_b, mu: float = 0.3, alpha: float = 0.05, *, h:
     else:
         cv = simulate_fluctuation_cv(mu, alpha, n_sim, n_grid, seed)
     d, dropped = _pairs(loss_a, loss_b, where)
+    pos = None
+    if positions is not None:
+        keep = ~(np.isnan(np.asarray(loss_a, dtype=np.float64).ravel())
+                 | np.isnan(np.asarray(loss_b, dtype=np.float64).ravel()))
+        pos = np.asarray(positions)[keep]
     p = d.size
     m = int(round(mu * p))
     nan = np.array([])
     if m < 2:
         return FluctuationResult(nan, nan.astype(np.int64), float("nan"), cv, False, mu, alpha,
                                  m, p, float("nan"), f"window of {m} pair(s) is too short (P = {p})")
-    v = long_run_variance(d, h - 1, kernel)
-    if not v > 0:
-        v = long_run_variance(d, h - 1, "bartlett")
-    if not v > 0:
+    if h >= p:
+        return FluctuationResult(nan, nan.astype(np.int64), float("nan"), cv, False, mu, alpha,
+                                 m, p, float("nan"), f"h = {h} >= P = {p}: the long-run variance "
+                                 "is degenerate")
+    tol = RELATIVE_TOLERANCE * float(np.mean(d * d))
+    v = long_run_variance(d, h - 1, kernel, positions=pos)
+    if not v > tol:
+        v = long_run_variance(d, h - 1, "bartlett", positions=pos)
+    if not v > tol:
         return FluctuationResult(nan, nan.astype(np.int64), float("nan"), cv, False, mu, alpha,
                                  m, p, 0.0, "the loss differential is constant (zero variance)")
     sigma = math.sqrt(v)

@@ -1,4 +1,5 @@
-"""Tests of PIT calibration: Berkowitz (Gaussian AR(1) LR) and Rossi–Sekhposyan (uniformity), PIT histograms."""
+"""Tests of PIT calibration: Berkowitz (Gaussian AR(1) LR, one-step PITs), Rossi–Sekhposyan
+(uniformity, bootstrap for h > 1), Knüppel (raw moments with a long-run covariance), histograms."""
 
 from __future__ import annotations
 
@@ -257,6 +258,156 @@ def rossi_sekhposyan(pit, h: int = 1, *, alphas=(0.01, 0.05, 0.10), n_boot: int 
         ks, cvm, float((ks_b >= ks).mean()), float((cvm_b >= cvm).mean()),
         {a: float(np.quantile(ks_b, 1 - a)) for a in alphas},
         {a: float(np.quantile(cvm_b, 1 - a)) for a in alphas}, "moving-block bootstrap", p, h, bl)
+
+
+@dataclass(frozen=True)
+class RawMomentResult:
+    """Result of :func:`knuppel`: the Wald-type ``stat`` (``T D' Omega^-1 D``), its reference law
+    (``law``: ``"F(R, 2m - R + 1)"`` or ``"chi2(R)"``) and p-value, the moment deviations ``D``."""
+
+    stat: float
+    pvalue: float
+    n: int
+    h: int
+    moments: tuple
+    deviations: np.ndarray
+    method: str
+    bandwidth: int
+    law: str
+    note: str = ""
+
+
+# Raw moments E[s^r] of the standardised uniform s = sqrt(12) (u - 1/2) (uniform on
+# [-sqrt 3, sqrt 3]): 0 for odd r, 3^(r/2) / (r + 1) for even r.
+def _uniform_raw_moment(r: int) -> float:
+    return 0.0 if r % 2 else 3.0 ** (r / 2) / (r + 1)
+
+
+def knuppel(pit, h: int = 1, *, moments=(1, 2), method: Literal["fixed_m", "bartlett"] = "fixed_m",
+            joint: Literal["bonferroni", "wald"] = "bonferroni", bandwidth: int | None = None,
+            positions=None) -> RawMomentResult:
+    """Knüppel's raw-moment test of PIT calibration, valid for serially dependent (h-step) PITs.
+
+    With the standardised PITs ``s_t = sqrt(12) (u_t - 1/2)`` and ``g_t = (s_t^r - E s^r)`` for
+    the chosen moments r, ``D = mean(g)`` and ``stat = T D' Omega^-1 D`` with ``Omega`` a
+    long-run covariance of ``g`` (Knüppel 2015 bases the test directly on the standardised
+    PITs, which he finds to have the better size). Under correct calibration ``E g = 0``
+    whatever the dependence of the PITs.
+
+    * ``method="fixed_m"`` (default): ``Omega`` is the Daniell weighted periodogram over
+      ``m = floor(T^(1/3))`` frequencies (:func:`vintages.daniell_covariance`), an orthonormal
+      series estimate with K = 2m terms. ``joint="wald"``: ``(K - R + 1)/(K R) stat ~
+      F(R, K - R + 1)`` (Sun 2013), needs ``K >= R``; ``joint="bonferroni"`` (default): one
+      studentised moment ``t_r = sqrt(T) D_r / sqrt(Omega_rr) ~ t(2m)`` each (the scalar
+      fixed-m law of Coroneo and Iacone 2020), ``stat = max |t_r|`` and ``p = min(1, R min_r
+      p_r)``. The Bonferroni bound holds whatever the correlation of the moment tests; the
+      joint Wald form over-rejects at 5 % by 4-7 points in the samples of a review (T = 20-40,
+      h = 2-4, the suite's Monte Carlo), the per-moment form does not.
+    * ``method="bartlett"``: Newey-West weights with ``bandwidth`` lags (default ``h - 1``) and
+      chi-squared(R) (``wald``) or N(0, 1) per moment (``bonferroni``), as in Knüppel (2015).
+
+    Parameters
+    ----------
+    pit : array_like, shape (T,)
+        PITs in time order; NaN dropped.
+    h : int
+        Forecast horizon in steps (the Bartlett default lags are h - 1).
+    moments : sequence of int
+        Raw moments tested (default the first two: bias and dispersion, the failures a review
+        acts on; each extra moment costs a degree of freedom of the fixed-m reference law).
+    method : {"bartlett", "fixed_m"}
+    joint : {"bonferroni", "wald"}
+    bandwidth : int, optional
+        m (fixed_m) or lags (bartlett).
+    positions : array_like of int, optional
+        Time positions of the PITs (gaps), as in :func:`vintages.daniell_covariance`.
+
+    Returns
+    -------
+    RawMomentResult
+        NaN with a note when the long-run covariance is singular (e.g. constant PITs).
+
+    References
+    ----------
+    Knüppel, M. (2015). Evaluating the calibration of multi-step-ahead density forecasts using
+    raw moments. Journal of Business & Economic Statistics 33(2), 270-281.
+    Sun, Y. (2013). A heteroskedasticity and autocorrelation robust F test using an orthonormal
+    series variance estimator. Econometrics Journal 16(1), 1-26.
+    Coroneo, L. and Iacone, F. (2020). Journal of Applied Econometrics 35(4), 391-409.
+    """
+    from vintages import daniell_covariance, long_run_covariance
+
+    where = "knuppel"
+    h = _check_int(h, "h", where, 1)
+    _check_choice(method, ("bartlett", "fixed_m"), "method", where)
+    _check_choice(joint, ("bonferroni", "wald"), "joint", where)
+    rs = tuple(_check_int(r, "moment", where, 1) for r in moments)
+    if not rs or len(set(rs)) != len(rs):
+        raise ValueError(f"{where}: moments must be distinct positive integers; got {moments!r}")
+    u = np.asarray(pit, dtype=np.float64).ravel()
+    keep = ~np.isnan(u)
+    pos = None if positions is None else np.asarray(positions)[keep]
+    u = u[keep]
+    if ((u < 0) | (u > 1)).any():
+        raise ValueError(f"{where}: PIT values must lie in [0, 1]; got min {u.min()!r}, max {u.max()!r}")
+    t, k = u.size, len(rs)
+    nan = float("nan")
+    if method == "fixed_m":
+        from harness.compare.dm import default_bandwidth
+
+        bw = default_bandwidth("fixed_m", max(t, 1)) if bandwidth is None else \
+            _check_int(bandwidth, "bandwidth", where, 1)
+    else:
+        bw = h - 1 if bandwidth is None else _check_int(bandwidth, "bandwidth", where, 0)
+
+    def empty(note: str, dev=None) -> RawMomentResult:
+        dev = np.full(k, nan) if dev is None else dev
+        return RawMomentResult(nan, nan, t, h, rs, dev, method, bw, "", note)
+
+    if method == "fixed_m" and not ((2 * bw >= k or joint == "bonferroni") and bw <= (t - 1) // 2):
+        return empty(f"T = {t} gives m = {bw} Fourier frequencies; {k} moments need 2m >= {k} "
+                     f"and T >= 2m + 1")
+    if t <= h or t < 3:
+        return empty(f"only {t} PIT value(s) at h = {h}")
+    s = math.sqrt(12.0) * (u - 0.5)
+    g = np.column_stack([s**r - _uniform_raw_moment(r) for r in rs])
+    dev = g.mean(axis=0)
+    if method == "fixed_m":
+        omega = daniell_covariance(g, bw, positions=pos)
+    else:
+        omega = long_run_covariance(g, bw, "bartlett", positions=pos)
+    scale = np.mean(g * g, axis=0)
+    # the same relative tolerance as the DM test, per moment (see harness.compare.dm)
+    tol = 1e-12
+    if joint == "bonferroni":
+        var = np.diag(omega)
+        if not ((scale > 0) & (var > tol * scale)).all():
+            return empty("a moment series of the PITs has zero long-run variance (no variation); "
+                         "the test is undefined", dev)
+        tr = math.sqrt(t) * dev / np.sqrt(var)
+        if method == "fixed_m":
+            pr = 2.0 * special.stdtr(2.0 * bw, -np.abs(tr))
+            law = f"Bonferroni over {k} t({2 * bw})"
+        else:
+            pr = 2.0 * special.ndtr(-np.abs(tr))
+            law = f"Bonferroni over {k} N(0, 1)"
+        stat = float(np.max(np.abs(tr)))
+        p = float(min(1.0, k * float(np.min(pr))))
+        return RawMomentResult(stat, p, t, h, rs, dev, method, bw, law)
+    eig = np.linalg.eigvalsh(omega / np.sqrt(np.outer(scale, scale))) if (scale > 0).all() else [0.0]
+    if not np.min(eig) > tol:
+        return empty("the PITs' moment series have a singular long-run covariance (no variation "
+                     "or collinear moments); the test is undefined", dev)
+    stat = float(t * dev @ np.linalg.solve(omega, dev))
+    if method == "fixed_m":
+        big_k = 2 * bw
+        f = (big_k - k + 1) / (big_k * k) * stat
+        p = float(special.fdtrc(k, big_k - k + 1, f))
+        law = f"F({k}, {big_k - k + 1})"
+    else:
+        p = chi2_sf(stat, k)
+        law = f"chi2({k})"
+    return RawMomentResult(stat, p, t, h, rs, dev, method, bw, law)
 
 
 def pit_histogram(pit, bins: int = 10) -> np.ndarray:

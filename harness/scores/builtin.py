@@ -75,10 +75,31 @@ for _w, _label, _roles in (("centre", "centre-weighted CRPS", {"density"}),
     ))
 
 
+def _log_score_values(ch, cfg):
+    """The capped log score of a chunk, computed once and shared with the floor indicator."""
+    key = ("log_score", float(cfg.density_floor))
+    if key not in ch._cache:
+        k = _k()
+        h = k._silverman(ch.s, ch.k, ch.full, ch.mean)
+        ch._cache[key] = k._log_score_from_sorted(ch.s, ch.y, ch.k, ch.full, h, cfg.density_floor)
+    return ch._cache[key]
+
+
 def _log_score(ch, cfg):
-    k = _k()
-    h = k._silverman(ch.s, ch.k, ch.full, ch.mean)
-    return {"log_score": k._log_score_from_sorted(ch.s, ch.y, ch.k, ch.full, h, cfg.density_floor)}
+    return {"log_score": _log_score_values(ch, cfg)}
+
+
+def _log_score_floored(ch, cfg):
+    import math
+
+    np = _np()
+    score = _log_score_values(ch, cfg)
+    cap = -math.log(cfg.density_floor)
+    # the kernel caps at -log(floor) (a far outlier, or a zero-spread ensemble); compare with a
+    # relative margin of 1e-12 so that the cap's own rounding counts as floored
+    out = (score >= cap * (1.0 - 1e-12)).astype(np.float64)
+    out[~np.isfinite(score)] = np.nan
+    return {"log_score_floored": out}
 
 
 register_score(Score(
@@ -86,8 +107,22 @@ register_score(Score(
     unit="nats (negative log density)", orientation="lower", versus="difference", tests=("dm",),
     roles=frozenset({"headline", "density"}),
     reference=(f"{_GR2007} (logarithmic score); Silverman, B. W. (1986). Density Estimation for "
-               "Statistics and Data Analysis, eq. 3.31 (kernel bandwidth)"),
+               "Statistics and Data Analysis, eq. 3.31 (kernel bandwidth). Floor rule: the kernel "
+               "density is floored at ScoreConfig.density_floor (default 1e-10), so the score is "
+               "capped at -log(floor) = 23.03 nats; a far outlier and a zero-spread ensemble both "
+               "get the cap, which understates a bad model's mean: read it with "
+               "log_score_floored, the share of forecasts at the cap"),
     needs=_none, compute=_log_score,
+))
+register_score(Score(
+    key="log_score_floored", label="log score at the floor",
+    relative_label="log score at the floor", unit="share of forecasts (0-1)",
+    # not a loss: no ratio, no best, no tests; the cell mean of the 0/1 indicator is the share
+    # of the cell's forecasts whose log score is the cap (count = share x n)
+    orientation="calibration", versus=None, tests=(), roles=frozenset({"diagnostic"}),
+    reference=("indicator that the log score hit its cap -log(density_floor) (see log_score); "
+               "common practice of reporting how many forecasts a floored score affects"),
+    needs=_none, compute=_log_score_floored,
 ))
 
 
@@ -151,9 +186,10 @@ def _cover(ch, cfg):
 register_score(Score(
     key="cover", label="coverage of the {pct}% interval", relative_label="coverage {pct}%",
     unit="share of outcomes inside", orientation="calibration", versus=None,
-    tests=("kupiec", "christoffersen"), roles=frozenset({"calibration"}),
+    tests=("kupiec", "christoffersen", "coverage_t"), roles=frozenset({"calibration"}),
     reference="common practice (hit indicator of the closed central interval); tests: Kupiec "
-              "(1995), Christoffersen (1998)",
+              "(1995), Christoffersen (1998) at h = 1; the hit-rate t-test with a long-run "
+              "variance at every h",
     pattern="cover_{pct}", config_levels="coverage_levels",
     needs=lambda cfg: _ends(cfg.coverage_levels), compute=_cover,
 ))
@@ -183,7 +219,7 @@ register_score(Score(
 
 register_score(Score(
     key="pit", label="PIT", relative_label="PIT", unit="probability", orientation="calibration",
-    versus=None, tests=("berkowitz", "rossi_sekhposyan"), roles=frozenset({"calibration"}),
+    versus=None, tests=("berkowitz", "rossi_sekhposyan", "knuppel"), roles=frozenset({"calibration"}),
     reference=("Gneiting, T., Balabdaoui, F. and Raftery, A. E. (2007). Probabilistic forecasts, "
                "calibration and sharpness. JRSS B 69(2), 243-268 (mid-rank ties)"),
     needs=_none,

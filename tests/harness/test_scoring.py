@@ -416,11 +416,14 @@ def test_score_all_equals_the_single_scores():
     y, x = _case(n=60, m=40, seed=15)
     out = sc.score_all(y, x, chunk_rows=7)
     expected_names = ["crps", "crps_centre", "crps_tails", "crps_left", "crps_right", "log_score",
-                      "se_mean", "ae_mean", "se_median", "ae_median", "qs_05", "qs_10", "qs_25",
+                      "log_score_floored", "se_mean", "ae_mean", "se_median", "ae_median", "qs_05", "qs_10", "qs_25",
                       "qs_50", "qs_75", "qs_90", "qs_95", "cover_50", "cover_70", "cover_90",
                       "interval_50", "interval_80", "pit"]
     assert list(out) == expected_names
     ref = {"crps": sc.crps_sorted(y, x), "log_score": sc.log_score(y, x), "pit": sc.pit(y, x)}
+    # the floor indicator: the standalone log score at its cap -log(floor) (tested in test_log_score_floor.py)
+    ref["log_score_floored"] = np.where(np.isnan(ref["log_score"]), np.nan,
+                                        ref["log_score"] >= -np.log(sc.DEFAULT_DENSITY_FLOOR) * (1 - 1e-12))
     for w in ("centre", "tails", "left", "right"):
         ref[f"crps_{w}"] = sc.weighted_crps_quantile(y, x, w)
     ref.update(sc.point_errors(y, x))
