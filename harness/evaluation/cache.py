@@ -85,6 +85,12 @@ def load(run_dir: Path, key: str, manifest):
                       meta["chronology_source"], tp, list(meta["subperiod_names"]), manifest)
 
 
+def _freq_code(col: pd.Series) -> str:
+    from vintages import freq_of
+
+    return freq_of(col) or "Q"
+
+
 def store(run_dir: Path, key: str, ev) -> None:
     """Write ``ev`` under ``key`` (each table atomically, then the completing ``meta.json``)."""
     from vintages import atomic_write_bytes
@@ -96,7 +102,7 @@ def store(run_dir: Path, key: str, ev) -> None:
     freq = ""
     for c in ("peak", "trough"):
         if c in tp:
-            freq = freq or (str(getattr(tp[c].dtype, "freq", "Q") or "Q")[:1] if hasattr(tp[c].dtype, "freq") else "Q")
+            freq = freq or _freq_code(tp[c])
             tp[c] = tp[c].astype(str)
     frames = {"forecasts": fc, "table": ev.table, "relative": ev.relative, "tests": ev.tests, "mcs": ev.mcs,
               "calibration": ev.calibration, "fluctuation": ev.fluctuation, "turning_points": tp}

@@ -153,7 +153,7 @@ def truth_sensitivity(run, truths=DEFAULT_TRUTHS, *, score: str = "crps", subper
 def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", progress=False, log=None,
                      score: str = "crps"):
     """Rerun the spec in pseudo-real-time mode and compare scores with the real-time run."""
-    from harness import compare
+
     from harness.backtest import run
     from harness.evaluation import evaluate, steps_ahead
 
@@ -173,6 +173,10 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
         return r.set_index(["model", "variable", "horizon"])[score]
 
     r_rt, r_ps = ratios(real_eval), ratios(pseudo)
+    from harness.compare.registry import comparison_tests, screen
+
+    pair = comparison_tests("pairwise")[0]  # the registered pairwise test, its own minimum sample
+    params = pair.settings({})
     rows = []
     for (model, var, h), g in m.groupby(["model", "variable", "horizon"], sort=True):
         g = g.sort_values("origin")
@@ -180,9 +184,10 @@ def data_sensitivity(spec, real_eval, *, truth: str, jobs=None, backend="loky", 
         row = dict(model=model, variable=var, horizon=h, n=len(g), real_time=rt.mean(), pseudo=ps.mean(),
                    difference=rt.mean() - ps.mean(), stat=np.nan, pvalue=np.nan,
                    ratio_real_time=r_rt.get((model, var, h), np.nan), ratio_pseudo=r_ps.get((model, var, h), np.nan))
-        if len(g) >= 4 and np.any(rt != ps):
-            r = compare.diebold_mariano(rt, ps, h=steps_ahead(h))
-            row.update(stat=r.stat, pvalue=r.pvalue)
+        blocked = screen(pair, len(g), steps_ahead(h), params)
+        if blocked is None and np.any(rt != ps):
+            r = pair.run(rt, ps, h=steps_ahead(h), seed=0, params=params)
+            row.update(stat=r.statistic, pvalue=r.pvalue)
         rows.append(row)
     out = pd.DataFrame(rows)
     if len(out):

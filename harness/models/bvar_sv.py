@@ -77,7 +77,7 @@ from harness.models.base import (
 from harness.models.bvar import ragged_split
 from harness.models.conditional import var_paths
 from harness.models.errors import ModelParameterError
-from harness.models.mcmc import effective_sample_size
+from harness.models.mcmc import effective_sample_size, mcmc_diagnostics  # noqa: F401
 from harness.models.params import Interval, PerVariable
 from harness.models.sv_blocks import sample_log_volatility
 from harness.models.sv_sampler import SVPosterior, _minnesota_independent, sv_gibbs
@@ -191,16 +191,15 @@ class BayesianVARSV(BaseModel):
                         float(self.vol_var_scale), int(self.n_iter), int(self.burn), int(self.thin),
                         rng)
         idx = np.arange(n)
-        ess = {}
+        chains = {}
         for label, arr in (("own_lag1", post.coefs[:, idx, idx]), ("log_vol_last", post.log_vol[:, -1]),
                            ("vol_innov_var", post.phi)):
-            for v, value in zip(variables, effective_sample_size(arr), strict=True):
-                ess[f"{label}[{v}]"] = float(value)
-        finite = [v for v in ess.values() if np.isfinite(v)]
+            for k, v in enumerate(variables):
+                chains[f"{label}[{v}]"] = np.asarray(arr)[:, k]
+        diag = mcmc_diagnostics(chains)
         self.posterior_ = post
-        self.diagnostics_ = {"ess": ess, "min_ess": float(min(finite)) if finite else float("nan"),
-                             "n_kept": int(post.phi.shape[0]), "n_iter": int(self.n_iter),
-                             "burn": int(self.burn), "thin": int(self.thin)}
+        self.diagnostics_ = {**diag, "n_iter": int(self.n_iter), "burn": int(self.burn),
+                             "thin": int(self.thin)}
         return post
 
     def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:

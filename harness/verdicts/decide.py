@@ -122,7 +122,7 @@ def _band_losses(fc: pd.DataFrame, variable: str, band: Band, score: str, subper
 
 def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int,
                 settings: Mapping[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
-    from harness.compare.registry import cell_seed, comparison_tests, too_small
+    from harness.compare.registry import cell_seed, comparison_tests, screen
     from harness.evaluation.cells import steps_ahead
 
     pair = comparison_tests("pairwise")[0]
@@ -139,7 +139,7 @@ def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int
                 if m == ev.benchmark:
                     continue
                 a, b = wide[m].to_numpy(), wide[ev.benchmark].to_numpy()
-                res = too_small(pair, len(a), steps, pparams)
+                res = screen(pair, len(a), steps, pparams)
                 if res is None:
                     s = cell_seed(seed, pair.name, (var, band.label, m, score)) if pair.seeded else 0
                     res = pair.run(a, b, h=steps, seed=s, params=pparams)
@@ -149,7 +149,7 @@ def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int
                                  usable=res.usable))
             for st in pset:
                 params = st.settings(settings.get(st.name))
-                if wide.shape[1] < 2 or too_small(st, wide.shape[0], steps, params) is not None:
+                if wide.shape[1] < 2 or screen(st, wide.shape[0], steps, params) is not None:
                     continue
                 s = cell_seed(seed, st.name, (var, band.label, score))
                 labels = list(wide.columns)

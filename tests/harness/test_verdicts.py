@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from harness.backtest import run
-from harness.compare.registry import cell_seed, comparison_tests, too_small
+from harness.compare.registry import cell_seed, comparison_tests, screen
 from harness.evaluation import evaluate, steps_ahead
 from harness.evaluation.sensitivity import truth_sensitivity
 from harness.spec import load_spec
@@ -60,7 +60,7 @@ def test_every_claim_is_derived_from_the_tables(decided):
         wide = _band_losses_by_hand(ev, r.variable, band)
         a, b = wide[r.model].to_numpy(), wide[ev.benchmark].to_numpy()
         steps = steps_ahead(band.max_h)
-        res = too_small(pair, len(a), steps, params) or pair.run(a, b, h=steps, seed=0, params=params)
+        res = screen(pair, len(a), steps, params) or pair.run(a, b, h=steps, seed=0, params=params)
         assert r.n == res.n and (r.pvalue == pytest.approx(res.pvalue, rel=1e-10) or
                                  (np.isnan(r.pvalue) and np.isnan(res.pvalue)))
         cal = ev.calibration[(ev.calibration["model"] == r.model) & (ev.calibration["variable"] == r.variable)
