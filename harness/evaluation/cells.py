@@ -34,14 +34,37 @@ MATRIX_COLUMNS: tuple[str, ...] = ("test", "model", "versus", "variable", "horiz
                                    "score", "n", "statistic", "pvalue", "note", "mean_diff", "method")
 
 __all__ = ["MATRIX_COLUMNS", "TEST_COLUMNS", "against", "calibration_results", "calibration_tests",
-           "pairwise_matrix", "pairwise_tests", "set_tests", "stability_tests", "steps_ahead",
-           "target_positions"]
+           "dependence_steps", "origins_per_target", "pairwise_matrix", "pairwise_tests", "set_tests",
+           "stability_tests", "steps_ahead", "target_positions"]
 
 
 def steps_ahead(h) -> int:
     """Steps ahead for the tests' HAC lags: h + 1 periods separate origin and target at horizon h ≥ 0
     (the origin's own period is not yet observed); backcasts count as one step."""
     return max(int(h) + 1, 1)
+
+
+def origins_per_target(target_periods) -> int:
+    """How many consecutive origins share a target period (3 for monthly origins of quarterly targets).
+
+    Forecasts of one target period from successive origins overlap, so a test's horizon counted
+    in target periods must be multiplied by this to count the overlap in origin steps.
+    """
+    tp = np.asarray(target_periods, dtype=object)
+    if tp.size == 0:
+        return 1
+    _, counts = np.unique(tp.astype(str), return_counts=True)
+    return max(int(np.ceil(np.median(counts))), 1)
+
+
+def dependence_steps(h, target_periods) -> int:
+    """Steps of serial dependence between consecutive forecasts at horizon ``h``, in origin steps.
+
+    ``steps_ahead(h)`` target periods times :func:`origins_per_target` (common practice: an
+    h-step forecast error is MA(h−1) in the target's periods; with k origins per period it spans
+    k(h+1) origins).
+    """
+    return steps_ahead(h) * origins_per_target(target_periods)
 
 
 def target_positions(target_periods) -> np.ndarray:
@@ -124,9 +147,9 @@ def _pairwise(fc, pairs_of, *, seed, settings, scores, tests, matrix: bool) -> p
         if not cols:
             continue
         for (var, h), g in fc.groupby(["variable", "horizon"], sort=True):
-            _, _, pos, sublists, models, arrays = _panels(g, cols)
+            _, tps, pos, sublists, models, arrays = _panels(g, cols)
             masks = _masks(sublists, subs)
-            steps = steps_ahead(h)
+            steps = dependence_steps(h, tps)
             for score, arr in arrays.items():
                 for j, jb in pairs_of(models):
                     pair_ok = np.isfinite(arr[:, j]) & np.isfinite(arr[:, jb])
@@ -254,7 +277,7 @@ def set_tests(fc: pd.DataFrame, *, seed: int,
                 wide = g.pivot_table(index="origin", columns="model", values=score).dropna()
                 if wide.shape[1] < 2:
                     continue
-                steps = steps_ahead(h)
+                steps = dependence_steps(h, g.drop_duplicates("origin")["target_period"].to_numpy())
                 labels = list(wide.columns)
                 small = screen(test, wide.shape[0], steps, params)
                 if small is not None:
@@ -287,7 +310,7 @@ def calibration_results(fc: pd.DataFrame, *, seed: int,
     rows = []
     for (model, var, h), g in fc.groupby(["model", "variable", "horizon"], sort=True):
         g = g.sort_values("origin")
-        steps = steps_ahead(h)
+        steps = dependence_steps(h, g["target_period"].to_numpy()) if "target_period" in g else steps_ahead(h)
         pos_all = target_positions(g["target_period"].to_numpy()) if "target_period" in g \
             else np.arange(len(g), dtype=np.int64)
         for c in g.columns:
@@ -373,7 +396,7 @@ def stability_tests(fc: pd.DataFrame, benchmark: str, *, seed: int,
                 if benchmark not in models or score not in arrays:
                     continue
                 arr, jb = arrays[score], models.index(benchmark)
-                steps = steps_ahead(h)
+                steps = dependence_steps(h, tps)
                 for j, model in enumerate(models):
                     if model == benchmark:
                         continue

@@ -123,7 +123,7 @@ def _band_losses(fc: pd.DataFrame, variable: str, band: Band, score: str, subper
 def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int,
                 settings: Mapping[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
     from harness.compare.registry import cell_seed, comparison_tests, screen
-    from harness.evaluation.cells import steps_ahead
+    from harness.evaluation.cells import dependence_steps
 
     pair = comparison_tests("pairwise")[0]
     pset = comparison_tests("set")
@@ -134,7 +134,8 @@ def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int
             wide = _band_losses(ev.forecasts, var, band, score, subperiod)
             if wide.empty or ev.benchmark not in wide.columns:
                 continue
-            steps = steps_ahead(band.max_h)
+            tp = ev.forecasts[(ev.forecasts["variable"] == var) & (ev.forecasts["horizon"] == band.max_h)]
+            steps = dependence_steps(band.max_h, tp.drop_duplicates("origin")["target_period"].to_numpy())
             for m in wide.columns:
                 if m == ev.benchmark:
                     continue

@@ -59,7 +59,7 @@ def test_every_claim_is_derived_from_the_tables(decided):
         assert r.ratio == pytest.approx(num / den, rel=1e-12)
         wide = _band_losses_by_hand(ev, r.variable, band)
         a, b = wide[r.model].to_numpy(), wide[ev.benchmark].to_numpy()
-        steps = steps_ahead(band.max_h)
+        steps = steps_ahead(band.max_h)  # quarterly origins: one origin per target period
         res = screen(pair, len(a), steps, params) or pair.run(a, b, h=steps, seed=0, params=params)
         assert r.n == res.n and (r.pvalue == pytest.approx(res.pvalue, rel=1e-10) or
                                  (np.isnan(r.pvalue) and np.isnan(res.pvalue)))
@@ -123,3 +123,12 @@ def test_no_mark_below_the_minimum_sample(decided):
     small = ev.tests[ev.tests["note"].astype(str).str.startswith("n too small")]
     assert small["pvalue"].isna().all()
     assert all(significance(p, -1.0) == "" for p in small["pvalue"])
+
+
+def test_monthly_origins_count_the_overlap_in_origin_steps():
+    """Three monthly origins per target quarter: an h-step forecast spans 3(h+1) origins (common practice)."""
+    from harness.evaluation.cells import dependence_steps, origins_per_target
+
+    tp = ["2020Q1", "2020Q1", "2020Q1", "2020Q2", "2020Q2", "2020Q2", "2020Q3"]
+    assert origins_per_target(tp) == 3 and dependence_steps(0, tp) == 3 and dependence_steps(1, tp) == 6
+    assert dependence_steps(2, ["2020Q1", "2020Q2", "2020Q3"]) == 3
