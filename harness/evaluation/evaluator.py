@@ -186,6 +186,10 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     # draws are stored as float32: compare them with the truth at the same resolution, so that a
     # forecast equal to an already published value scores exactly zero error
     obs = fc["truth"].to_numpy(dtype=np.float64).astype(np.float32).astype(np.float64)
+    if len(fc) and not np.isfinite(obs).any():
+        why = fc["missing_reason"].dropna()
+        raise ValueError(f"no forecast has a truth under {truth!r} (e.g. {why.iloc[0]})" if len(why) else
+                         f"no forecast has a truth under {truth!r}")
     scores = score_all(obs, draws, **kw)
     for k, v in scores.items():
         fc[k] = v

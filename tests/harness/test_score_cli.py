@@ -49,3 +49,12 @@ def test_forecasts_without_a_truth_are_not_counted_as_scored(tmp_path, small_sto
     n = ev.table[(ev.table.model == "ar") & (ev.table.variable == "gdp") & (ev.table.horizon == 1)
                  & (ev.table.subperiod == "full")]["n"].iloc[0]
     assert int(cell["scored"].sum()) == n and int(cell["cover_90"].notna().sum()) == n
+
+
+def test_a_truth_nothing_has_yet_says_so(tmp_path, small_store):
+    """``--truth release:99``: one line saying no forecast has that truth yet, not an internal error."""
+    spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
+    run(spec, jobs=1, progress=False)
+    res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "release:99"])
+    assert res.exit_code != 0 and "no forecast has a truth under 'release:99'" in res.output
+    assert "only" in res.output  # the reason of one missing truth, e.g. "only 3 releases ... so far"
