@@ -298,3 +298,16 @@ def test_rs_bootstrap_size_at_the_registered_minimum():
     u = ar1_pits(80, 2, 600, seed=31)
     assert _reject([cp.rossi_sekhposyan(r, h=2, n_boot=199, seed=i).ks_pvalue
                     for i, r in enumerate(u)]) <= 0.11
+def test_exact_ar1_gradient_matches_finite_differences():
+    """The hand-derived gradient of the exact AR(1) likelihood equals central differences (common practice)."""
+    from harness.compare.pit import _ar1_exact_loglik, _ar1_exact_nll_and_grad
+
+    rng = np.random.default_rng(7)
+    z = rng.standard_normal(40)
+    theta = np.array([0.2, -0.1, 0.3])
+    f, g = _ar1_exact_nll_and_grad(theta, z)
+    assert f == pytest.approx(-_ar1_exact_loglik(z, 0.2, np.exp(-0.1), np.tanh(0.3)), rel=1e-12)
+    eps = 1e-6
+    num = [(_ar1_exact_nll_and_grad(theta + eps * np.eye(3)[i], z)[0]
+            - _ar1_exact_nll_and_grad(theta - eps * np.eye(3)[i], z)[0]) / (2 * eps) for i in range(3)]
+    np.testing.assert_allclose(g, num, rtol=1e-6, atol=1e-8)
