@@ -8,7 +8,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from harness.compare._checks import _check_choice, _check_int, chi2_sf
 from harness.compare.bootstrap import bootstrap_indices
@@ -133,6 +133,8 @@ def berkowitz(pit, *, likelihood: Literal["exact", "conditional"] = "exact",
         mu, sigma, rho = mu_c, math.sqrt(s2), rho_c
     else:
         start = np.array([mu_c, 0.5 * math.log(s2), math.atanh(rho_c)])
+        from scipy import optimize  # its import costs ~0.3 s: only when a Berkowitz test runs
+
         fit = optimize.minimize(_ar1_exact_nll_and_grad, start, args=(z,), jac=True, method="BFGS",
                                 options={"gtol": 1e-8})
         mu, sigma, rho = float(fit.x[0]), math.exp(fit.x[1]), math.tanh(fit.x[2])
