@@ -107,14 +107,33 @@ class Sensitivity:
                          f"{len(big)} of {len(e)} target × horizon cells.")
         return "\n".join(lines)
 
+    @classmethod
+    def load(cls, path: str | Path) -> Sensitivity | None:
+        """Read what :meth:`save` wrote (Parquet, typed; the CSVs are for people), None when absent."""
+        path = Path(path)
+        if not (path / "sensitivity_truths.parquet").is_file():
+            return None
+
+        def rd(stem):
+            p = path / f"{stem}.parquet"
+            return pd.read_parquet(p) if p.is_file() else pd.DataFrame()
+
+        tt = rd("sensitivity_truths")
+        truths = tuple(pd.unique(tt["truth"])) if len(tt) else ()
+        return cls(tt, rd("sensitivity_rankings"), rd("sensitivity_data"), rd("revision_exposure"),
+                   rd("sensitivity_verdicts"), truths, None)
+
     def save(self, path: str | Path) -> Path:
         path = Path(path)
         path.mkdir(parents=True, exist_ok=True)
-        self.truth_table.to_csv(path / "sensitivity_truths.csv", index=False)
-        self.rankings.to_csv(path / "sensitivity_rankings.csv", index=False)
-        self.data_table.to_csv(path / "sensitivity_data.csv", index=False)
-        self.exposure.to_csv(path / "revision_exposure.csv", index=False)
-        self.verdicts.to_csv(path / "sensitivity_verdicts.csv", index=False)
+        from harness.csvsafe import write_csv
+        from vintages import atomic_write_bytes
+
+        for frame, stem in ((self.truth_table, "sensitivity_truths"), (self.rankings, "sensitivity_rankings"),
+                            (self.data_table, "sensitivity_data"), (self.exposure, "revision_exposure"),
+                            (self.verdicts, "sensitivity_verdicts")):
+            write_csv(frame, path / f"{stem}.csv")  # for people (spreadsheet-safe)
+            atomic_write_bytes(path / f"{stem}.parquet", frame.to_parquet(index=False))  # read back typed
         (path / "sensitivity.txt").write_text(self.summary() + "\n")
         return path
 
