@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from harness.backtest.ledger import failure_path, task_path
+from harness.backtest.cache import TaskCache
 from harness.models.base import LAYOUT_VERSION
 from harness.spec import Spec
 
@@ -47,14 +47,16 @@ class Plan:
     tasks: list[Task]
     timings: dict = field(default_factory=dict)
     store_batches: int = 0
+    #: which cached inputs the plan came from ("plan", "cube" or "") and the entries it used
+    reused: str = ""
+    cache_entries: dict = field(default_factory=dict)
 
     def explain(self) -> str:
         """A human-readable description of the resolved plan (``harness run --explain``)."""
         s = self.spec
-        cache = s.cache_dir
-        done = sum(task_path(cache, t.key).is_file() for t in self.tasks)
-        failed = sum(failure_path(cache, t.key).is_file() and not task_path(cache, t.key).is_file()
-                     for t in self.tasks)
+        cache = TaskCache(s.cache_dir)
+        done = sum(cache.has(t.key) for t in self.tasks)
+        failed = sum(cache.failure_path(t.key).is_file() and not cache.has(t.key) for t in self.tasks)
         lines = [
             f"spec        {s.path} (hash {s.hash()[:12]})",
             f"store       {s.store} (checksum {self.store_checksum[:12]})",
@@ -72,6 +74,8 @@ class Plan:
             f"tasks       {len(self.tasks)} ({len(s.models)} models × {len(self.origins)} origins): "
             f"{done} cached, {failed} failed before, {len(self.tasks) - done - failed} to compute",
             f"run dir     {s.out}",
+            f"task cache  {s.cache_dir}"
+            + (f" (information sets reused from the {self.reused} cache)" if self.reused else ""),
         ]
         if len(self.infos):
             first = self.infos[-1]
@@ -143,7 +147,9 @@ def seed_key(model: str, origin: np.datetime64) -> tuple[int, int]:
     return (zlib.crc32(model.encode()), days)
 
 
-def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
+def task_key(spec: Spec, model_spec, model_cls, info, targets, skey, *, data_hash: str | None = None,
+             partial_hash: str | None = None) -> str:
+    """The cache key of one task (see the runner's docstring); the two hashes may be given precomputed."""
     payload = {
         "key_version": KEY_VERSION,
         "type": model_spec.type,
@@ -151,11 +157,11 @@ def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
         "params": model_spec.params,
         "version": str(getattr(model_cls, "version", "0")),
         "code": _model_code_hash(model_cls),
-        "data": info.data_hash(),
+        "data": data_hash if data_hash is not None else info.data_hash(),
         # how a layout reads the panel (partial quarters left out since layout 2) and which
         # cells are flagged partial: both change what a model sees
         "layout": LAYOUT_VERSION,
-        "partial": _partial_hash(info),
+        "partial": partial_hash if partial_hash is not None else _partial_hash(info),
         "policy": info.policy,
         "transforms": info.transforms,
         "targets": [list(targets.variables), list(targets.horizons), str(targets.current)],
@@ -167,23 +173,25 @@ def task_key(spec: Spec, model_spec, model_cls, info, targets, skey) -> str:
 
 
 def make_plan(spec: Spec) -> Plan:
-    """Resolve a spec: open the store, schedule origins, build information sets, key every task."""
+    """Resolve a spec: open the store, schedule origins, build information sets, key every task.
+
+    Origins, information sets and targets come from the plan cache when the store (its
+    checksum) and every setting they depend on are unchanged (:func:`_plan_inputs`).
+    """
     from harness.models.base import get_model_class
-    from vintages import VintageStore, build_infosets, check_origins, make_targets, parse_schedule
+    from vintages import VintageStore
 
     t0 = time.perf_counter()
     store = VintageStore(spec.store)
-    missing = [v for v in spec.variables if v not in store.variables]
+    manifest = store.manifest()
+    missing = [v for v in spec.variables if v not in manifest["variables"]]
     if missing:
         from harness.errors import SpecError
 
         raise SpecError(f"{spec.path}: [variables] {missing} not in the store {spec.store}; "
-                        f"it holds: {', '.join(sorted(store.variables))}")
-    cube = store.cube(variables=list(spec.variables))
-    origins = check_origins(cube, parse_schedule(spec.origins.as_mapping(), cube=cube))
-    t1 = time.perf_counter()
-    infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
-    targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, spec.freq) for info in infos]
+                        f"it holds: {', '.join(sorted(manifest['variables']))}")
+    checksum = store.checksum()
+    origins, infos, targets, hashes, reused, entries, t1 = _plan_inputs(spec, store, checksum)
     t2 = time.perf_counter()
     models, tasks = {}, []
     for ms in spec.models:
@@ -191,7 +199,139 @@ def make_plan(spec: Spec) -> Plan:
         models[ms.name] = cls(**ms.params)
         for i, (o, info, tg) in enumerate(zip(origins, infos, targets, strict=True)):
             sk = seed_key(ms.name, o)
-            tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk), sk, i))
-    return Plan(spec, store.checksum(), origins, infos, targets, models, tasks,
+            tasks.append(Task(ms.name, o, task_key(spec, ms, cls, info, tg, sk, data_hash=hashes[i][0],
+                                                   partial_hash=hashes[i][1]), sk, i))
+    return Plan(spec, checksum, origins, infos, targets, models, tasks,
                 {"store_and_origins": t1 - t0, "infosets": t2 - t1, "keys": time.perf_counter() - t2},
-                store_batches=len(store.manifest()["batches"]))
+                store_batches=len(manifest["batches"]), reused=reused, cache_entries=entries)
+
+
+def _build_inputs(spec: Spec, cube):
+    """Origins, information sets and targets of a spec, built from the release index (no cache)."""
+    from vintages import build_infosets, check_origins, make_targets, parse_schedule
+
+    origins = check_origins(cube, parse_schedule(spec.origins.as_mapping(), cube=cube))
+    t1 = time.perf_counter()
+    infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
+    targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, spec.freq) for info in infos]
+    return origins, infos, targets, t1
+
+
+# ---------------------------------------------------------------------------------------------
+# Plan cache (origins, information sets, targets) and cube cache, keyed by the store checksum
+# and every setting the information sets depend on. Kept apart from make_plan's body so that
+# changes to how information sets are built (_build_inputs) need no change here: every [run]
+# key except those listed in _NOT_IN_INPUTS enters the key by itself.
+# ---------------------------------------------------------------------------------------------
+
+#: version of what a plan-cache entry holds and how its key is made
+PLAN_CACHE_VERSION = 1
+#: [run] keys that do not change origins, information sets or targets
+_NOT_IN_INPUTS = ("store", "out", "cache", "name", "seed", "draws")
+_VINTAGES_CODE: list[str] = []
+
+
+def _vintages_code_hash() -> str:
+    """Digest of the vintages package's source (information sets are built by it)."""
+    if not _VINTAGES_CODE:
+        import vintages
+
+        h = hashlib.sha256()
+        for f in sorted(Path(vintages.__file__).parent.glob("*.py")):
+            h.update(f.name.encode() + b"\0" + f.read_bytes())
+        _VINTAGES_CODE.append(h.hexdigest()[:16])
+    return _VINTAGES_CODE[0]
+
+
+def _jsonable(x):
+    from dataclasses import asdict, is_dataclass
+
+    if is_dataclass(x) and not isinstance(x, type):
+        return asdict(x)
+    return str(x)
+
+
+def inputs_digest(spec: Spec, checksum: str) -> str:
+    """The plan-cache key of a spec's information sets on a store state (``checksum``)."""
+    from dataclasses import fields
+
+    run = {f.name: getattr(spec.run, f.name) for f in fields(spec.run) if f.name not in _NOT_IN_INPUTS}
+    payload = {
+        "version": PLAN_CACHE_VERSION,
+        "store": checksum,
+        "run": run,
+        "variables": {k: _jsonable(v) for k, v in spec.variables.items()},
+        "origins": spec.origins.as_mapping(),
+        "targets": [list(spec.targets.variables), list(spec.targets.horizons)],
+        "vintages": _vintages_code_hash(),
+        "layout": LAYOUT_VERSION,
+    }
+    return hashlib.sha256(json.dumps(payload, sort_keys=True, default=str).encode()).hexdigest()[:32]
+
+
+def cube_digest(checksum: str, variables) -> str:
+    """The cube-cache key of a store state restricted to ``variables``."""
+    payload = {"store": checksum, "variables": sorted(variables), "vintages": _vintages_code_hash()}
+    return hashlib.sha256(json.dumps(payload, sort_keys=True).encode()).hexdigest()[:32]
+
+
+def _cube(spec: Spec, store, checksum: str):
+    """(cube, reused): the spec's release index from the cube cache when it holds this store state, else built and kept."""
+    from vintages import Cube, StoreCorruptError
+
+    path = TaskCache(spec.cache_dir).cube_path(cube_digest(checksum, spec.variables))
+    if path.is_file():
+        try:
+            cube = Cube.load(path)
+            if cube.checksum == checksum:
+                return cube, True
+        except (StoreCorruptError, OSError):
+            pass  # damaged: rebuilt below
+    cube = store.cube(variables=list(spec.variables))
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        cube.save(path)
+    except OSError:
+        pass  # a cache that cannot be written only costs time
+    return cube, False
+
+
+def _plan_inputs(spec: Spec, store, checksum: str):
+    """(origins, infos, targets, hashes, reused, entries, t1): from the plan cache or built and kept.
+
+    ``hashes[i]`` are the data and partial-mask digests of information set ``i`` (task keys);
+    ``reused`` names the cache that answered ("plan", "cube" or ""); ``entries`` the cache
+    entries used (the run registers them).
+    """
+    import pickle
+
+    from harness.backtest.cache import private_dir, trusted_file
+
+    cache = TaskCache(spec.cache_dir)
+    digest = inputs_digest(spec, checksum)
+    path = cache.plan_path(digest)
+    entries = {"plans": [digest], "cubes": [cube_digest(checksum, spec.variables)]}
+    if trusted_file(path):
+        try:
+            with open(path, "rb") as fh:
+                b = pickle.load(fh)
+            if b.get("version") == PLAN_CACHE_VERSION and b.get("digest") == digest:
+                return (b["origins"], b["infos"], b["targets"], b["hashes"], "plan", entries,
+                        time.perf_counter())
+        except Exception:  # noqa: BLE001 - any damaged entry is rebuilt
+            pass
+    cube, cube_reused = _cube(spec, store, checksum)
+    origins, infos, targets, t1 = _build_inputs(spec, cube)
+    hashes = [(info.data_hash(), _partial_hash(info)) for info in infos]
+    reused = "cube" if cube_reused else ""
+    try:
+        private_dir(cache.plan_dir())
+        data = pickle.dumps({"version": PLAN_CACHE_VERSION, "digest": digest, "origins": origins,
+                             "infos": infos, "targets": targets, "hashes": hashes},
+                            protocol=pickle.HIGHEST_PROTOCOL)
+        from vintages import atomic_write_bytes
+
+        atomic_write_bytes(path, data)
+    except (OSError, pickle.PicklingError, TypeError, AttributeError):
+        pass  # an information set that does not pickle, or a read-only cache: only costs time
+    return origins, infos, targets, hashes, reused, entries, t1

@@ -73,6 +73,7 @@ from harness.spec.sections import (
     ScoringSection,
     SubPeriod,
     TargetsSection,
+    cache_location,
 )
 
 SECTION_KEYS = ("models", "origins", "run", "scoring", "targets", "variables")
@@ -141,7 +142,7 @@ class Spec:
 
     @property
     def cache_dir(self) -> Path:
-        return self.run.cache or (self.run.out / "tasks")
+        return cache_location(self.run)
 
     @property
     def benchmark(self) -> str:
