@@ -69,14 +69,14 @@ def encode(draws: np.ndarray, layout: str) -> pa.FixedSizeListArray:
     elif layout == "joint":
         flat = pa.array(arr.reshape(-1), type=pa.float32())
     else:
-        raise ValueError(f"unknown draws layout {layout!r}; expected one of {', '.join(LAYOUTS)}")
+        raise ValueError(f"unknown draws layout {layout!r}; expected one of {', '.join(sorted(LAYOUTS))}")
     return pa.FixedSizeListArray.from_arrays(flat, n)
 
 
 def decode(column: pa.ChunkedArray | pa.Array, layout: str) -> np.ndarray:
     """The ``draws`` column of ``layout`` as a ``(rows, n_draws)`` float32 array."""
     if layout not in READ_LAYOUTS:
-        raise ValueError(f"unknown draws layout {layout!r}; this version reads {', '.join(READ_LAYOUTS)}")
+        raise ValueError(f"unknown draws layout {layout!r}; this version reads {', '.join(sorted(READ_LAYOUTS))}")
     col = column.combine_chunks() if isinstance(column, pa.ChunkedArray) else column
     n = col.type.list_size
     flat = col.flatten().to_numpy(zero_copy_only=False)

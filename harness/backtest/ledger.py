@@ -104,7 +104,7 @@ def assemble(run_dir: Path, cache: TaskCache, tasks: list[dict], previous=None, 
         How the draws are stored (see :mod:`harness.backtest.codec`).
     """
     if layout not in codec.LAYOUTS:
-        raise ValueError(f"unknown draws layout {layout!r}; expected one of {', '.join(codec.LAYOUTS)}")
+        raise ValueError(f"unknown draws layout {layout!r}; expected one of {', '.join(sorted(codec.LAYOUTS))}")
     run_dir = Path(run_dir)
     digest = ledger_digest(tasks)
     old_lp, old_pp, old_dp = _previous_files(run_dir, previous)

@@ -173,6 +173,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
         plan = plan or make_plan(spec)
         # registered before any lookup: a concurrent 'harness cache clean' keeps all of it
         cache.register(out, keys=[t.key for t in plan.tasks], **plan.cache_entries)
+        _checkpoint("registered")
         return _run_locked(spec, plan, cache, given_plan=given_plan, t_start=t_start, jobs=jobs,
                            backend=backend, scheduler=scheduler, retry_failed=retry_failed,
                            progress=progress, say=say, draws_layout=draws_layout,

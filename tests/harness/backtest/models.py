@@ -44,3 +44,28 @@ class PidModel(DiagModel):
         out = super().forecast(info, targets, n_draws, rng)
         self.diagnostics_ = {"pid": float(os.getpid())}
         return out
+
+
+class PoolSleeper(DiagModel):
+    """Sleeps ``seconds`` in a worker process and ``inline`` seconds in the driver.
+
+    The driver's inline pilot sees a pace that makes the pool pay, so the run starts its pool;
+    there every task blocks for long, which is what killing the driver must cut short.
+    """
+
+    name = "sleeper"
+
+    def __init__(self, seconds: float = 60.0, inline: float = 0.3):
+        self.seconds = seconds
+        self.inline = inline
+
+    def params(self) -> dict:
+        return {"seconds": self.seconds, "inline": self.inline}
+
+    def forecast(self, info, targets, n_draws, rng):
+        import multiprocessing
+        import time
+
+        worker = multiprocessing.parent_process() is not None
+        time.sleep(self.seconds if worker else self.inline)
+        return super().forecast(info, targets, n_draws, rng)

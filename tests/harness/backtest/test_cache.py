@@ -1,0 +1,206 @@
+"""The shared task cache: where it is, reuse across run directories, the plan cache, and cleaning."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import threading
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from harness.backtest import make_plan, read_ledger, run
+from harness.backtest.cache import TaskCache
+from harness.backtest.errors import CacheBusyError, RunLockedError
+from harness.cli import app
+from harness.spec import load_spec
+from tests.harness.conftest import write_spec
+from vintages.store import VintageStore
+
+
+def _spec(tmp_path, store, name="run", extra=""):
+    d = tmp_path / name
+    d.mkdir(parents=True, exist_ok=True)
+    return load_spec(write_spec(d, store, d / "out", extra))
+
+
+def test_cache_location_spec_then_environment_then_beside_the_store(tmp_path, small_store, monkeypatch):
+    """[run] cache wins, then HARNESS_CACHE, then .harness-cache beside (never inside) the store."""
+    monkeypatch.delenv("HARNESS_CACHE")
+    s = _spec(tmp_path, small_store)
+    assert s.cache_dir == small_store.parent / ".harness-cache"
+    assert small_store not in s.cache_dir.parents
+    monkeypatch.setenv("HARNESS_CACHE", str(tmp_path / "env"))
+    assert s.cache_dir == (tmp_path / "env").resolve()
+    assert s.with_run(cache=tmp_path / "spec-cache").cache_dir == tmp_path / "spec-cache"
+
+
+def test_cache_inside_the_store_is_refused(tmp_path, small_store):
+    """A [run] cache inside the store is a spec error naming the key."""
+    from harness.errors import SpecError
+
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    d = tmp_path / "s"
+    d.mkdir()
+    p = write_spec(d, store, d / "out")
+    p.write_text(p.read_text().replace("[run]\n", f'[run]\ncache = "{store / "c"}"\n'))
+    with pytest.raises(SpecError, match=r"\[run\] cache"):
+        load_spec(p)
+
+
+def test_new_run_directory_reuses_every_finished_task(tmp_path, small_store):
+    """A second run directory of the same spec computes nothing and holds the same draws."""
+    s = _spec(tmp_path, small_store)
+    first = run(s, jobs=1, progress=False)
+    other = run(s.with_run(out=tmp_path / "elsewhere"), jobs=1, progress=False)
+    assert first.computed == first.total and other.computed == 0
+    assert read_ledger(other.run_dir).draws.values.tobytes() == read_ledger(first.run_dir).draws.values.tobytes()
+    regs = {rec["run_dir"] for _, rec in TaskCache(s.cache_dir).registrations()}
+    assert regs == {str(first.run_dir.resolve()), str(other.run_dir.resolve())}
+
+
+def test_plan_cache_reuses_information_sets_until_the_store_changes(tmp_path, small_store):
+    """The second plan comes from the plan cache with the same keys; a new release or another policy rebuilds it."""
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    s = _spec(tmp_path, store)
+    fresh = make_plan(s)
+    again = make_plan(s)
+    assert fresh.reused == "" and again.reused == "plan"
+    assert [t.key for t in again.tasks] == [t.key for t in fresh.tasks]
+    for a, b in zip(fresh.infos, again.infos, strict=True):
+        assert a.data_hash() == b.data_hash()
+        assert a.panel.equals(b.panel)
+    # another ragged-edge policy: the same store state, so the release index is reused
+    other = make_plan(s.with_run(policy="balance"))
+    assert other.reused == "cube"
+    # a new release: neither is reused; the information set of the last origin changes
+    last = pd.Timestamp(fresh.origins[-1])
+    VintageStore(store).append(pd.DataFrame({"variable": ["cpi"], "period": [str(pd.Period(last, "M") - 2)],
+                                             "release": [last - pd.Timedelta(days=3)], "value": [150.0]}),
+                               source="revision.csv")
+    changed = make_plan(s)
+    assert changed.reused == ""
+    assert changed.tasks[-1].key != fresh.tasks[-1].key and changed.tasks[0].key == fresh.tasks[0].key
+
+
+def test_plan_cache_skips_a_file_others_could_have_written(tmp_path, small_store):
+    """A plan whose directory is open to other users is not unpickled: the plan is rebuilt."""
+    s = _spec(tmp_path, small_store)
+    make_plan(s)
+    plans = TaskCache(s.cache_dir).plan_dir()
+    os.chmod(plans, 0o777)
+    try:
+        assert make_plan(s).reused == "cube"
+    finally:
+        os.chmod(plans, 0o700)
+    assert make_plan(s).reused == "plan"
+
+
+def test_clean_removes_only_what_no_run_uses(tmp_path, small_store):
+    """clean drops a deleted run's registration and its entries, keeps a live run's, removes temporary files."""
+    extra = '[models.drift]\ntype = "nochange"\n'
+    keep = run(_spec(tmp_path, small_store, "keep"), jobs=1, progress=False)
+    gone = run(_spec(tmp_path, small_store, "gone", extra), jobs=1, progress=False)
+    cache = TaskCache(keep.manifest.cache)
+    only_gone = {t["key"] for t in gone.manifest.tasks} - {t["key"] for t in keep.manifest.tasks}
+    assert only_gone
+    shutil.rmtree(gone.run_dir)
+    # files a killed writer leaves: temporary names in the cache and in a run directory,
+    # and a ledger file no manifest names
+    junk = [cache.root / "tasks" / "ab" / ".tmp-0123456789abcdef", cache.root / ".tmp-fedcba9876543210",
+            keep.run_dir / ".tmp-00aa00aa00aa00aa", keep.run_dir / "ledger-ffffffffffffffff.parquet"]
+    for f in junk:
+        f.parent.mkdir(parents=True, exist_ok=True)
+        f.write_bytes(b"partial")
+    dry = cache.clean()
+    assert not dry.removed and all(f.exists() for f in junk)
+    res = cache.clean(apply=True)
+    assert str(gone.run_dir.resolve()) in res.stale_runs
+    assert not any(f.exists() for f in junk)
+    assert not any(cache.has(k) for k in only_gone)
+    assert all(cache.has(t["key"]) for t in keep.manifest.tasks)
+    assert (keep.run_dir / keep.manifest.ledger).is_file()
+    again = run(_spec(tmp_path, small_store, "keep"), jobs=1, progress=False)
+    assert again.computed == 0 and read_ledger(again.run_dir).draws.shape[0] == 2
+
+
+def test_clean_waits_for_no_run(tmp_path, small_store):
+    """While a run holds the cache's shared lock, clean refuses at once (and the CLI exits 3)."""
+    s = _spec(tmp_path, small_store)
+    run(s, jobs=1, progress=False)
+    cache = TaskCache(s.cache_dir)
+    with cache.using():
+        with pytest.raises(CacheBusyError, match="a run is using this cache"):
+            cache.clean(apply=True)
+        out = CliRunner().invoke(app, ["cache", "clean", "--cache", str(cache.root), "--apply"])
+        assert out.exit_code == 3, out.output
+    assert "0 gone" in cache.clean().summary()
+
+
+def test_a_second_run_on_the_same_directory_is_refused(tmp_path, small_store):
+    """A run directory another run is writing is refused at once, naming its lock."""
+    from harness.backtest.cache import run_dir_lock
+
+    s = _spec(tmp_path, small_store)
+    s.out.mkdir(parents=True)
+    started = threading.Event()
+    release = threading.Event()
+
+    def hold():
+        with run_dir_lock(s.out):
+            started.set()
+            release.wait(30)
+
+    t = threading.Thread(target=hold)
+    t.start()
+    started.wait(10)
+    try:
+        with pytest.raises(RunLockedError, match=r"\.lock"):
+            run(s, jobs=1, progress=False)
+    finally:
+        release.set()
+        t.join()
+
+
+def test_cache_commands(tmp_path, small_store):
+    """'harness cache info' lists entries and the runs using them; 'clean' without --apply removes nothing."""
+    s = _spec(tmp_path, small_store)
+    res = run(s, jobs=1, progress=False)
+    r = CliRunner().invoke(app, ["cache", "info", "--spec", str(s.path)])
+    assert r.exit_code == 0, r.output
+    assert f"{res.total} task results" in r.output and str(res.run_dir.resolve()) in r.output
+    shutil.rmtree(res.run_dir)
+    r = CliRunner().invoke(app, ["cache", "clean", "--spec", str(s.path)])
+    assert r.exit_code == 0 and "would remove" in r.output and "dry run" in r.output
+    assert TaskCache(s.cache_dir).info()["tasks"] == res.total
+    r = CliRunner().invoke(app, ["cache", "clean", "--spec", str(s.path), "--apply"])
+    assert r.exit_code == 0 and "removed" in r.output
+    assert TaskCache(s.cache_dir).info()["tasks"] == 0
+    r = CliRunner().invoke(app, ["cache", "clean"], env={"HARNESS_CACHE": ""})
+    assert r.exit_code == 2 and "name the cache" in r.output
+
+
+def test_registration_precedes_lookup(tmp_path, small_store):
+    """A run registers every key of its plan (done or not) in the cache before it computes."""
+    s = _spec(tmp_path, small_store)
+    plan = make_plan(s)
+    seen = {}
+
+    def spy():
+        (path, rec), = TaskCache(s.cache_dir).registrations()
+        seen["keys"] = set(rec["keys"])
+        seen["done"] = sum(TaskCache(s.cache_dir).has(t.key) for t in plan.tasks)
+
+    from harness.backtest import runner
+
+    runner.CHECKPOINTS["registered"] = spy
+    try:
+        run(s, jobs=1, progress=False)
+    finally:
+        runner.CHECKPOINTS.clear()
+    assert seen["keys"] == {t.key for t in plan.tasks} and seen["done"] == 0
+    assert np.isfinite(read_ledger(s.out).draws.values).all()
