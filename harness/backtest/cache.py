@@ -229,6 +229,35 @@ class TaskCache:
                 out.append((p, None))
         return out
 
+    def donors(self, run_dir: Path, keys, limit: int = 3) -> list[tuple[Path, object]]:
+        """Other live run directories of this cache whose registrations share most ``keys`` (best first).
+
+        Returned with their manifests; an unreadable manifest or one of another cache is skipped.
+        """
+        from harness.backtest.manifest import RunManifest
+        from harness.errors import RunError
+
+        here = Path(run_dir).resolve()
+        want = set(keys)
+        scored = []
+        for _, rec in self.registrations():
+            if not rec or Path(rec.get("run_dir", "")) == here or not self._is_live(rec):
+                continue
+            n = len(want.intersection(rec.get("keys", ())))
+            if n:
+                scored.append((n, rec["run_dir"]))
+        out = []
+        for _, d in sorted(scored, reverse=True):
+            try:
+                man = RunManifest.read(d)
+            except RunError:
+                continue
+            if man.cache and Path(man.cache).resolve() == self.root.resolve():
+                out.append((Path(d), man))
+            if len(out) >= limit:
+                break
+        return out
+
     def _is_live(self, rec: dict | None) -> bool:
         """A registration still counts: its run directory exists and does not use another cache."""
         if not rec or "run_dir" not in rec:

@@ -76,21 +76,36 @@ class LedgerFiles:
         return tuple(n for n in (self.ledger, self.provenance, self.diagnostics) if n)
 
 
-def _previous_files(run_dir: Path, previous) -> tuple[Path | None, Path | None, Path | None]:
-    if previous is None:
-        return None, None, None
-    diag = getattr(previous, "diagnostics_file", "") or ""
-    return run_dir / previous.ledger, run_dir / previous.provenance, (run_dir / diag if diag else None)
+def _files_of(run_dir: Path, man) -> tuple[Path, Path, Path | None]:
+    diag = getattr(man, "diagnostics_file", "") or ""
+    return run_dir / man.ledger, run_dir / man.provenance, (run_dir / diag if diag else None)
+
+
+def _link_or_copy(src: Path, dst: Path) -> None:
+    """Put a content-addressed file of another run directory here (hard link; a copy across devices)."""
+    import os
+    import shutil
+
+    if dst.exists():
+        return
+    tmp = dst.with_name(f".tmp-link-{dst.name}")
+    tmp.unlink(missing_ok=True)
+    try:
+        os.link(src, tmp)
+    except OSError:
+        shutil.copyfile(src, tmp)
+    os.replace(tmp, dst)
 
 
 def assemble(run_dir: Path, cache: TaskCache, tasks: list[dict], previous=None, *,
-             layout: str = DEFAULT_LAYOUT) -> LedgerFiles:
+             layout: str = DEFAULT_LAYOUT, donors=()) -> LedgerFiles:
     """Gather the run's completed tasks into content-addressed ledger, provenance and diagnostics files.
 
     Reuses the previous run's files when they hold exactly these completed tasks in the same
-    layout (a rerun with nothing new), and their rows otherwise (an incremental rerun reads and
-    encodes only the new tasks). Task files are read by a thread pool (Parquet decoding
-    releases the GIL).
+    layout (a rerun with nothing new); links those of another run directory of the cache that
+    holds exactly them (a new ``--out``); and otherwise takes the rows it can from the previous
+    run or the donor holding most of the wanted tasks (an incremental rerun reads and encodes
+    only the others). Task files are read by a thread pool (Parquet decoding releases the GIL).
 
     Parameters
     ----------
@@ -102,37 +117,37 @@ def assemble(run_dir: Path, cache: TaskCache, tasks: list[dict], previous=None, 
         The manifest of the run directory before this run.
     layout : {"sorted", "joint"}
         How the draws are stored (see :mod:`harness.backtest.codec`).
+    donors : sequence of (Path, RunManifest)
+        Other run directories of the same cache, best first (:meth:`TaskCache.donors`). A row
+        is identified by its task key, so rows taken from another run are relabelled with this
+        run's model label and origin.
     """
     if layout not in codec.LAYOUTS:
         raise ValueError(f"unknown draws layout {layout!r}; expected one of {', '.join(sorted(codec.LAYOUTS))}")
     run_dir = Path(run_dir)
     digest = ledger_digest(tasks)
-    old_lp, old_pp, old_dp = _previous_files(run_dir, previous)
-    old_layout = getattr(previous, "draws_layout", "float32") if previous is not None else None
-    if (previous is not None and previous.ledger_digest == digest and old_layout == layout
-            and old_lp.is_file() and old_pp.is_file() and (old_dp is None or old_dp.is_file())):
-        return LedgerFiles(previous.ledger, previous.provenance, digest, previous.ledger_rows, layout,
-                           previous.diagnostics_file, previous.diagnostics_rows)
+    sources = ([(run_dir, previous)] if previous is not None else []) + list(donors)
+    for src_dir, man in sources:
+        lp, pp, dp = _files_of(src_dir, man)
+        if (man.ledger_digest == digest and getattr(man, "draws_layout", "float32") == layout
+                and lp.is_file() and pp.is_file() and (dp is None or dp.is_file())):
+            if src_dir != run_dir:
+                for f in (lp, pp, dp):
+                    if f is not None:
+                        _link_or_copy(f, run_dir / f.name)
+            return LedgerFiles(man.ledger, man.provenance, digest, man.ledger_rows, layout,
+                               man.diagnostics_file, man.diagnostics_rows)
     done = [t for t in tasks if t.get("status") == "ok" and cache.has(t["key"])]
     want = {t["key"] for t in done}
     tables, prov, diag = [], [], []
     have: set[str] = set()
-    if old_lp is not None and old_lp.is_file() and old_pp.is_file():
-        try:
-            old = pq.read_table(old_lp)
-            old = old.filter(pc.is_in(old.column("key"), value_set=pa.array(sorted(want), pa.string())))
-            if old_layout != layout:  # e.g. a ledger written before layouts existed
-                old = old.set_column(old.column_names.index("draws"), "draws",
-                                     codec.encode(codec.decode(old.column("draws"), old_layout), layout))
-            have = set(old.column("key").unique().to_pylist())
-            tables.append(old.select(["model", "origin", "variable", "horizon", "target_period", "draws", "key"]))
-            oldp = pd.read_parquet(old_pp)
-            prov.append(oldp[oldp["key"].isin(have)])
-            if old_dp is not None and old_dp.is_file():
-                oldd = pd.read_parquet(old_dp)
-                diag.append(oldd[oldd["key"].isin(have)])
-        except (OSError, KeyError, ValueError, pa.ArrowInvalid):  # unreadable: rebuilt from the task files
-            tables, prov, diag, have = [], [], [], set()
+    if sources:
+        def overlap(source) -> int:
+            return len(want.intersection(t.get("key") for t in source[1].tasks if t.get("status") == "ok"))
+
+        best = max(sources, key=overlap)  # the first (this directory's) wins ties
+        if overlap(best):
+            tables, prov, diag, have = _reuse_rows(best, done, want, layout)
     todo = [t for t in done if t["key"] not in have]
     if todo:
         with ThreadPoolExecutor(max_workers=4) as pool:
@@ -170,6 +185,49 @@ def assemble(run_dir: Path, cache: TaskCache, tasks: list[dict], previous=None, 
         dname = f"diagnostics-{hashlib.sha256(ddata).hexdigest()[:16]}.parquet"
         _atomic_write(run_dir / dname, ddata)
     return LedgerFiles(lname, pname, digest, ledger.num_rows, layout, dname, len(ddf))
+
+
+_LEDGER_COLUMNS = ["model", "origin", "variable", "horizon", "target_period", "draws", "key"]
+
+
+def _reuse_rows(source, done: list[dict], want: set[str], layout: str):
+    """(tables, provenance, diagnostics, keys) of the wanted tasks already in another ledger, relabelled.
+
+    Unreadable source files give nothing to reuse (the rows are rebuilt from the task files).
+    """
+    src_dir, man = source
+    lp, pp, dp = _files_of(src_dir, man)
+    if not (lp.is_file() and pp.is_file()):
+        return [], [], [], set()
+    src_layout = getattr(man, "draws_layout", "float32")
+    if layout != "sorted" and src_layout == "sorted":
+        return [], [], [], set()  # sorted draws cannot give back the draw order: read the task files
+    label = {t["key"]: t["model"] for t in done}
+    origin = {t["key"]: t["origin"] for t in done}
+    try:
+        old = pq.read_table(lp)
+        old = old.filter(pc.is_in(old.column("key"), value_set=pa.array(sorted(want), pa.string())))
+        if src_layout != layout:  # e.g. a ledger written before layouts existed
+            old = old.set_column(old.column_names.index("draws"), "draws",
+                                 codec.encode(codec.decode(old.column("draws"), src_layout), layout))
+        keys = old.column("key").to_pylist()
+        old = old.set_column(old.column_names.index("model"), "model",
+                             pa.array([label[k] for k in keys], pa.string()))
+        old = old.set_column(old.column_names.index("origin"), "origin",
+                             pa.array(np.array([origin[k] for k in keys], dtype="datetime64[D]")).cast(pa.date32()))
+        have = set(keys)
+        oldp = pd.read_parquet(pp)
+        oldp = oldp[oldp["key"].isin(have)].copy()
+        oldp["model"], oldp["origin"] = oldp["key"].map(label), oldp["key"].map(origin)
+        diag = []
+        if dp is not None and dp.is_file():
+            oldd = pd.read_parquet(dp)
+            oldd = oldd[oldd["key"].isin(have)].copy()
+            oldd["model"], oldd["origin"] = oldd["key"].map(label), oldd["key"].map(origin)
+            diag.append(oldd)
+        return [old.select(_LEDGER_COLUMNS)], [oldp], diag, have
+    except (OSError, KeyError, ValueError, pa.ArrowInvalid):
+        return [], [], [], set()
 
 
 def _new_rows(todo: list[dict], read: list, layout: str) -> pa.Table:

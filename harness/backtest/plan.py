@@ -74,8 +74,11 @@ class Plan:
             f"tasks       {len(self.tasks)} ({len(s.models)} models × {len(self.origins)} origins): "
             f"{done} cached, {failed} failed before, {len(self.tasks) - done - failed} to compute",
             f"run dir     {s.out}",
-            f"task cache  {s.cache_dir}"
-            + (f" (information sets reused from the {self.reused} cache)" if self.reused else ""),
+            f"task cache  {s.cache_dir}" + {
+                "plan": " (information sets from the plan cache)",
+                "cube": " (release index from the cache; information sets built)",
+                "incremental": " (information sets before the first changed release reused, the rest built)",
+            }.get(self.reused, ""),
         ]
         if len(self.infos):
             first = self.infos[-1]
@@ -206,11 +209,18 @@ def make_plan(spec: Spec) -> Plan:
                 store_batches=len(manifest["batches"]), reused=reused, cache_entries=entries)
 
 
-def _build_inputs(spec: Spec, cube):
-    """Origins, information sets and targets of a spec, built from the release index (no cache)."""
-    from vintages import build_infosets, check_origins, make_targets, parse_schedule
+def _schedule(spec: Spec, cube):
+    """The spec's origins on the release index."""
+    from vintages import check_origins, parse_schedule
 
-    origins = check_origins(cube, parse_schedule(spec.origins.as_mapping(), cube=cube))
+    return check_origins(cube, parse_schedule(spec.origins.as_mapping(), cube=cube))
+
+
+def _build_inputs(spec: Spec, cube, origins=None):
+    """Origins (scheduled unless given), information sets and targets, built from the release index."""
+    from vintages import build_infosets, make_targets
+
+    origins = _schedule(spec, cube) if origins is None else origins
     t1 = time.perf_counter()
     infos = build_infosets(cube, origins, spec.variables, freq=spec.freq, policy=spec.policy, mode=spec.mode)
     targets = [make_targets(info, spec.targets.variables, spec.targets.horizons, spec.freq) for info in infos]
@@ -321,17 +331,99 @@ def _plan_inputs(spec: Spec, store, checksum: str):
         except Exception:  # noqa: BLE001 - any damaged entry is rebuilt
             pass
     cube, cube_reused = _cube(spec, store, checksum)
-    origins, infos, targets, t1 = _build_inputs(spec, cube)
-    hashes = [(info.data_hash(), _partial_hash(info)) for info in infos]
     reused = "cube" if cube_reused else ""
+    latest = cache.plan_dir() / f"latest-{inputs_digest(spec, '')}.json"
+    update = _update_inputs(spec, cube, latest, cache) if spec.mode == "real-time" else None
+    if update is not None:
+        origins, infos, targets, hashes, t1 = update
+        reused = "incremental"
+    else:
+        origins, infos, targets, t1 = _build_inputs(spec, cube)
+        hashes = [(info.data_hash(), _partial_hash(info)) for info in infos]
     try:
+        from vintages import atomic_write_bytes
+
         private_dir(cache.plan_dir())
         data = pickle.dumps({"version": PLAN_CACHE_VERSION, "digest": digest, "origins": origins,
                              "infos": infos, "targets": targets, "hashes": hashes},
                             protocol=pickle.HIGHEST_PROTOCOL)
-        from vintages import atomic_write_bytes
-
         atomic_write_bytes(path, data)
+        atomic_write_bytes(latest, json.dumps({"digest": digest, "cube": entries["cubes"][0]}).encode())
     except (OSError, pickle.PicklingError, TypeError, AttributeError):
         pass  # an information set that does not pickle, or a read-only cache: only costs time
     return origins, infos, targets, hashes, reused, entries, t1
+
+
+def _update_inputs(spec: Spec, cube, latest: Path, cache: TaskCache):
+    """The previous plan of these settings brought up to date, or None (then everything is rebuilt).
+
+    In real time the information set of an origin holds only values released on or before it,
+    so when the store changed only in values released from day ``d`` on (an append, a
+    correction: :func:`first_change` compares the old and new release index value by value),
+    the information sets of the origins before ``d`` are the previous ones and only the later
+    origins are built. Pseudo-real-time sets read the latest vintage and are always rebuilt.
+    """
+    import pickle
+
+    from harness.backtest.cache import trusted_file
+    from vintages import Cube, StoreCorruptError
+
+    try:
+        ptr = json.loads(latest.read_text()) if trusted_file(latest) else None
+        old_plan = cache.plan_path(ptr["digest"]) if ptr else None
+        if old_plan is None or not trusted_file(old_plan) or not cache.cube_path(ptr["cube"]).is_file():
+            return None
+        old_cube = Cube.load(cache.cube_path(ptr["cube"]))
+        with open(old_plan, "rb") as fh:
+            old = pickle.load(fh)
+        if old.get("version") != PLAN_CACHE_VERSION:
+            return None
+    except (OSError, ValueError, KeyError, StoreCorruptError, pickle.UnpicklingError, EOFError, AttributeError):
+        return None
+    day = first_change(old_cube, cube, list(spec.variables))
+    if day is False:
+        return None
+    origins = _schedule(spec, cube)
+    old_origins = np.asarray(old["origins"], dtype="datetime64[D]")
+    n = 0
+    while (n < min(len(origins), len(old_origins)) and origins[n] == old_origins[n]
+           and (day is None or np.datetime64(origins[n], "D") < day)):
+        n += 1
+    if n == 0:
+        return None
+    t1 = time.perf_counter()
+    infos, targets, hashes = list(old["infos"][:n]), list(old["targets"][:n]), list(old["hashes"][:n])
+    if n < len(origins):
+        _, new_infos, new_targets, _ = _build_inputs(spec, cube, origins[n:])
+        infos += new_infos
+        targets += new_targets
+        hashes += [(info.data_hash(), _partial_hash(info)) for info in new_infos]
+    return origins, infos, targets, hashes, t1
+
+
+def first_change(old, new, variables) -> np.datetime64 | None | bool:
+    """The first release day at which two release indexes differ for ``variables``.
+
+    None when they hold the same values; False when they cannot be compared value by value
+    (another frequency or metadata of a variable): then nothing may be reused.
+    """
+    import pandas as pd
+
+    if any(old.meta.get(v) != new.meta.get(v) for v in variables):
+        return False
+
+    def rows(cube) -> pd.DataFrame:
+        parts = []
+        for fi in cube.indexes.values():
+            keep = np.isin(fi.variables, variables)
+            n = fi.n_period
+            var = fi.variables[fi.cell // n]
+            sel = keep[fi.cell // n]
+            parts.append(pd.DataFrame({"v": var[sel], "p": fi.periods[fi.cell[sel] % n],
+                                       "d": fi.day[sel].astype(np.int64),
+                                       "x": fi.value[sel].view(np.int64)}))
+        return pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=["v", "p", "d", "x"])
+
+    both = rows(old).merge(rows(new), how="outer", indicator=True)
+    diff = both.loc[both["_merge"] != "both", "d"]
+    return None if diff.empty else np.datetime64(int(diff.min()), "D")

@@ -39,7 +39,7 @@ from pathlib import Path
 from harness.backtest.cache import TaskCache, run_dir_lock
 from harness.backtest.diagnostics import diagnostic_warnings, has_checks
 from harness.backtest.dispatch import _dispatch
-from harness.backtest.ledger import DEFAULT_LAYOUT, assemble, remove_stale
+from harness.backtest.ledger import DEFAULT_LAYOUT, assemble, ledger_digest, remove_stale
 from harness.backtest.manifest import RunManifest
 from harness.backtest.plan import Plan, make_plan
 from harness.backtest.process import interrupt_signals
@@ -225,7 +225,9 @@ def _run_locked(spec: Spec, plan: Plan, cache: TaskCache, *, given_plan: bool, t
         bar.close()
     t_assemble = time.perf_counter()
     ordered = [records[t.key] for t in plan.tasks]
-    files = assemble(out, cache, ordered, previous, layout=draws_layout)
+    donors = [] if previous is not None and previous.ledger_digest == ledger_digest(ordered) else \
+        cache.donors(out, [r["key"] for r in ordered if r.get("status") == "ok"])
+    files = assemble(out, cache, ordered, previous, layout=draws_layout, donors=donors)
     _checkpoint("after_ledger")
     failures = [{k: r.get(k) for k in ("model", "origin", "key", "error", "traceback")}
                 for r in ordered if r.get("status") != "ok"]

@@ -77,13 +77,13 @@ def test_plan_cache_reuses_information_sets_until_the_store_changes(tmp_path, sm
     # another ragged-edge policy: the same store state, so the release index is reused
     other = make_plan(s.with_run(policy="balance"))
     assert other.reused == "cube"
-    # a new release: neither is reused; the information set of the last origin changes
+    # a new release: the sets of the origins before it are reused, the last one is rebuilt
     last = pd.Timestamp(fresh.origins[-1])
     VintageStore(store).append(pd.DataFrame({"variable": ["cpi"], "period": [str(pd.Period(last, "M") - 2)],
                                              "release": [last - pd.Timedelta(days=3)], "value": [150.0]}),
                                source="revision.csv")
     changed = make_plan(s)
-    assert changed.reused == ""
+    assert changed.reused == "incremental"
     assert changed.tasks[-1].key != fresh.tasks[-1].key and changed.tasks[0].key == fresh.tasks[0].key
 
 
@@ -204,3 +204,84 @@ def test_registration_precedes_lookup(tmp_path, small_store):
         runner.CHECKPOINTS.clear()
     assert seen["keys"] == {t.key for t in plan.tasks} and seen["done"] == 0
     assert np.isfinite(read_ledger(s.out).draws.values).all()
+
+
+def test_new_run_directory_links_or_reuses_another_runs_ledger(tmp_path, small_store, monkeypatch):
+    """A run whose tasks another run directory's ledger holds links that file; a superset reads only its new tasks."""
+    a = run(_spec(tmp_path, small_store, "a"), jobs=1, progress=False)
+    same = run(_spec(tmp_path, small_store, "a").with_run(out=tmp_path / "same"), jobs=1, progress=False)
+    assert same.manifest.ledger == a.manifest.ledger
+    assert os.path.samefile(same.run_dir / same.manifest.ledger, a.run_dir / a.manifest.ledger)
+    reads = []
+    original = TaskCache.read_task
+
+    def counting(self, key):
+        reads.append(key)
+        return original(self, key)
+
+    monkeypatch.setattr(TaskCache, "read_task", counting)
+    extra = '[models.drift]\ntype = "nochange"\n'
+    b = run(_spec(tmp_path, small_store, "b", extra), jobs=1, progress=False)
+    drift = {t["key"] for t in b.manifest.tasks if t["model"] == "drift"}
+    assert set(reads) == drift  # the rw and ar rows came from a's ledger
+    la, lb = read_ledger(a.run_dir), read_ledger(b.run_dir)
+    assert lb.draws.sel(model=["rw", "ar"]).values.tobytes() == la.draws.values.tobytes()
+    cols = ["model", "origin", "variable", "last_observed", "source_release", "key"]
+    pb = lb.provenance[lb.provenance["model"] != "drift"].sort_values(["key", "variable"]).reset_index(drop=True)
+    pa_ = la.provenance.sort_values(["key", "variable"]).reset_index(drop=True)
+    assert pb[cols].astype(str).equals(pa_[cols].astype(str))
+    joint = lb.joint_draws(models=["drift"]).values
+    assert np.array_equal(np.sort(joint, axis=-1), lb.draws.sel(model=["drift"]).values)
+
+
+@pytest.mark.parametrize("change", ["append", "supersede"])
+def test_incremental_plan_equals_a_full_rebuild(tmp_path, small_store, change):
+    """After a new release or a corrected old one, reused-plus-rebuilt information sets equal a rebuild from scratch.
+
+    The origins before the first changed release day keep their sets (no look-ahead: nothing
+    released later was in them); the others are rebuilt.
+    """
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    s = _spec(tmp_path, store)
+    before = make_plan(s)
+    st = VintageStore(store)
+    if change == "append":
+        day = pd.Timestamp(before.origins[-3]) - pd.Timedelta(days=2)
+        rows = pd.DataFrame({"variable": ["gdp"], "period": [str(pd.Period(day, "Q") - 1)], "release": [day],
+                             "value": [123.0]})
+        st.append(rows, source="new.csv")
+    else:
+        log = st.read_log(with_superseded=False)
+        old = log[(log["variable"] == "cpi") & (log["release"] < pd.Timestamp(before.origins[len(before.origins) // 2]))]
+        row = old.iloc[-1]
+        day = pd.Timestamp(row["release"])
+        st.append(pd.DataFrame({"variable": ["cpi"], "period": [row["period"]], "release": [day],
+                                "value": [float(row["value"]) * 1.01]}), supersede=True, reason="correction",
+                  source="fix.csv")
+    inc = make_plan(s)
+    full = make_plan(s.with_run(cache=tmp_path / "fresh"))
+    assert inc.reused == "incremental" and full.reused == ""
+    assert [t.key for t in inc.tasks] == [t.key for t in full.tasks]
+    for a, b in zip(inc.infos, full.infos, strict=True):
+        assert a.data_hash() == b.data_hash() and a.panel.equals(b.panel)
+        assert a.source_release == b.source_release
+    cut = np.datetime64(day.date(), "D")
+    before_keys = {(t.model, t.origin): t.key for t in before.tasks}
+    for t in inc.tasks:
+        if t.origin < cut:  # known before the change: the same task, served from the cache
+            assert t.key == before_keys[(t.model, t.origin)]
+    assert any(t.key != before_keys[(t.model, t.origin)] for t in inc.tasks if t.origin >= cut)
+
+
+def test_pseudo_real_time_plans_are_rebuilt_after_a_change(tmp_path, small_store):
+    """Pseudo-real-time information sets read the latest vintage: after a new release none is reused."""
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    s = _spec(tmp_path, store).with_run(mode="pseudo")
+    first = make_plan(s)
+    last = pd.Timestamp(first.origins[-1])
+    VintageStore(store).append(pd.DataFrame({"variable": ["gdp"], "period": [str(pd.Period(last, "Q") - 3)],
+                                             "release": [last - pd.Timedelta(days=1)], "value": [99.0]}),
+                               source="late.csv")
+    assert make_plan(s).reused in ("", "cube")
