@@ -150,8 +150,9 @@ def _harness(tmp: Path, draws: int) -> dict[str, float]:
     spec = tmp / f"spec-{draws}.toml"
     spec.write_text(SPEC.format(draws=draws))
     cache = tmp / f"cache-{draws}-{time.time_ns()}"
+    shutil.rmtree(tmp / f"run-{draws}", ignore_errors=True)  # cold: no previous ledger to reuse either
     env = _env(cache)
-    cli = [sys.executable, "-m", "harness.cli._app"]
+    cli = [sys.executable, "-c", "from harness.cli import main; main()"]
     t_run, _ = _timed(cli + ["run", str(spec), "-q"], env, tmp)
     t_score, _ = _timed(cli + ["score", str(tmp / f"run-{draws}")], env, tmp)
     shutil.rmtree(cache, ignore_errors=True)

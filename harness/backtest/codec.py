@@ -81,7 +81,11 @@ def decode(column: pa.ChunkedArray | pa.Array, layout: str) -> np.ndarray:
     n = col.type.list_size
     flat = col.flatten().to_numpy(zero_copy_only=False)
     if layout == "sorted":
-        flat = from_order_keys(flat)
+        keys = np.array(flat, dtype=np.int32)  # a writable copy, turned into the floats in place
+        mask = keys >> 31
+        mask &= _FLIP
+        keys ^= mask
+        return keys.view(np.float32).reshape(len(col), n)
     return np.asarray(flat, dtype=np.float32).reshape(len(col), n)
 
 
@@ -96,8 +100,10 @@ def write_table(table: pa.Table, sink, layout: str) -> None:
     kw: dict = {"use_dictionary": strings, "compression": "zstd"}
     if "draws" in table.column_names:
         if layout == "sorted":
-            # the deltas are already bit-packed; zstd on top still takes ~3 % off
+            # the deltas are bit-packed already: zstd on top takes off under 2 % and costs a
+            # fifth of the write time, so the draws go uncompressed
             kw["column_encoding"] = {DRAWS_LEAF: "DELTA_BINARY_PACKED"}
+            kw["compression"] = {c: ("none" if c == "draws" else "zstd") for c in table.column_names}
         else:
             kw["column_encoding"] = {DRAWS_LEAF: "BYTE_STREAM_SPLIT"}
     pq.write_table(table, sink, **kw)

@@ -351,8 +351,6 @@ class Ledger:
             A model without task results (e.g. a pool's rows), or a task result no longer in the
             cache (naming the entry; rerunning the spec recomputes the same draws).
         """
-        import xarray as xr
-
         man = self.manifest
         models = list(models) if models is not None else self.models
         if self.draw_order == "joint":
@@ -360,33 +358,57 @@ class Ledger:
         root = Path(cache) if cache is not None else Path(getattr(man, "cache", "") or "")
         if not str(root):
             raise RunError(f"{self.run_dir / 'run.json'}: names no task cache; pass cache=")
-        tc = TaskCache(root)
-        out = np.full((len(models), *self.draws.shape[1:]), np.nan, dtype=np.float32)
-        origins = self.draws["origin"].values.astype("datetime64[D]")
-        variables = [str(v) for v in self.draws["variable"].values]
-        horizons = self.draws["horizon"].values.astype(np.int64)
-        by_model = {m: [t for t in man.tasks if t.get("model") == m] for m in models}
-        lacking = [m for m, ts in by_model.items() if not ts]
+        lacking = [m for m in models if not any(t.get("model") == m for t in man.tasks)]
         if lacking:
             raise RunError(f"{self.run_dir}: models {lacking} have no task results (pools and other rows "
                            "made after the run keep no joint paths)")
-        for mi, m in enumerate(models):
-            for t in by_model[m]:
-                if t.get("status") != "ok":
-                    continue
-                path = tc.task_path(t["key"])
-                if not path.is_file():
-                    raise RunError(f"{path}: the joint draws of {m} at {t['origin']} are no longer in the task "
-                                   f"cache; rerun 'harness run {man.spec}' (it recomputes the same draws)")
-                tab, _ = tc.read_task(t["key"])
-                vals = codec.decode(tab.column("draws"), "joint")
-                oi = int(np.searchsorted(origins, np.datetime64(t["origin"], "D")))
-                vi = pd.Index(variables).get_indexer(tab.column("variable").to_pylist())
-                hi = np.searchsorted(horizons, tab.column("horizon").to_numpy())
-                out[mi, oi, vi, hi] = vals
-        return xr.DataArray(out, dims=self.draws.dims,
-                            coords={**{k: self.draws[k].values for k in self.draws.dims if k != "model"},
-                                    "model": models}, name="draws")
+        d = self.draws
+        return joint_draws_from_cache(TaskCache(root), man.tasks, models, d["origin"].values,
+                                      [str(v) for v in d["variable"].values], d["horizon"].values,
+                                      d.sizes["draw"], spec=man.spec)
+
+
+def joint_draws_from_cache(cache: TaskCache, tasks, models, origins, variables, horizons, n_draws: int, *,
+                           spec: str = "SPEC"):
+    """Draws in the order the models made them, from the task cache (also before a manifest exists).
+
+    Parameters
+    ----------
+    cache : TaskCache
+    tasks : iterable of dict
+        Task records with ``model``, ``origin``, ``key`` and ``status`` (a run's records or its
+        manifest's ``tasks``); failed tasks stay NaN.
+    models, origins, variables, horizons : sequences
+        The coordinates of the result (origins as days).
+    n_draws : int
+
+    Returns
+    -------
+    xarray.DataArray, dims (model, origin, variable, horizon, draw), float32
+    """
+    import xarray as xr
+
+    origins_d = np.asarray(origins).astype("datetime64[D]")
+    horizons = np.asarray(horizons, dtype=np.int64)
+    out = np.full((len(models), len(origins_d), len(variables), len(horizons), n_draws), np.nan, dtype=np.float32)
+    mi_of = {m: i for i, m in enumerate(models)}
+    vidx = pd.Index(list(variables))
+    for t in tasks:
+        if t.get("status") != "ok" or t.get("model") not in mi_of:
+            continue
+        path = cache.task_path(t["key"])
+        if not path.is_file():
+            raise RunError(f"{path}: the joint draws of {t['model']} at {t['origin']} are no longer in the task "
+                           f"cache; rerun 'harness run {spec}' (it recomputes the same draws)")
+        tab, _ = cache.read_task(t["key"])
+        oi = int(np.searchsorted(origins_d, np.datetime64(t["origin"], "D")))
+        vi = vidx.get_indexer(tab.column("variable").to_pylist())
+        hi = np.searchsorted(horizons, tab.column("horizon").to_numpy())
+        out[mi_of[t["model"]], oi, vi, hi] = codec.decode(tab.column("draws"), "joint")
+    return xr.DataArray(out, dims=("model", "origin", "variable", "horizon", "draw"),
+                        coords={"model": list(models), "origin": origins_d.astype("datetime64[ns]"),
+                                "variable": list(variables), "horizon": horizons, "draw": np.arange(n_draws)},
+                        name="draws")
 
 
 def read_ledger(run_dir: str | Path) -> Ledger:

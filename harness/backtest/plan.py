@@ -405,25 +405,33 @@ def first_change(old, new, variables) -> np.datetime64 | None | bool:
     """The first release day at which two release indexes differ for ``variables``.
 
     None when they hold the same values; False when they cannot be compared value by value
-    (another frequency or metadata of a variable): then nothing may be reused.
+    (another frequency or metadata of a variable): then nothing may be reused. Exact: every
+    value is compared as (variable, period, release day, the float's bits), no hashing.
     """
-    import pandas as pd
-
     if any(old.meta.get(v) != new.meta.get(v) for v in variables):
         return False
+    names = {v: i for i, v in enumerate(sorted(variables))}
 
-    def rows(cube) -> pd.DataFrame:
+    def rows(cube) -> np.ndarray:
         parts = []
         for fi in cube.indexes.values():
-            keep = np.isin(fi.variables, variables)
             n = fi.n_period
-            var = fi.variables[fi.cell // n]
-            sel = keep[fi.cell // n]
-            parts.append(pd.DataFrame({"v": var[sel], "p": fi.periods[fi.cell[sel] % n],
-                                       "d": fi.day[sel].astype(np.int64),
-                                       "x": fi.value[sel].view(np.int64)}))
-        return pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=["v", "p", "d", "x"])
+            var = np.array([names.get(str(v), -1) for v in fi.variables], dtype=np.int64)[fi.cell // n]
+            sel = var >= 0
+            parts.append(np.column_stack([var[sel], fi.periods[fi.cell[sel] % n], fi.day[sel].astype(np.int64),
+                                          fi.value[sel].view(np.int64)]))
+        return np.concatenate(parts) if parts else np.empty((0, 4), dtype=np.int64)
 
-    both = rows(old).merge(rows(new), how="outer", indicator=True)
-    diff = both.loc[both["_merge"] != "both", "d"]
-    return None if diff.empty else np.datetime64(int(diff.min()), "D")
+    both = np.concatenate([rows(old), rows(new)])
+    if not len(both):
+        return None
+    both = both[np.lexsort(both.T[::-1])]
+    # a (variable, period, day) appears once per index, so a value both hold is a pair of equal
+    # neighbours after sorting; whatever stays unpaired is new, changed or gone
+    same = np.all(both[1:] == both[:-1], axis=1)
+    paired = np.zeros(len(both), dtype=bool)
+    paired[1:] |= same
+    paired[:-1] |= same
+    if paired.all():
+        return None
+    return np.datetime64(int(both[~paired, 2].min()), "D")
