@@ -4,8 +4,8 @@ Every ratio is measured side by side in this one process (the machine is shared 
 read the ratios). Figures (targets in ``*_target`` lines):
 
 * ``runner_cold_*``: the demo spec (4 models x 84 origins, 2,000 draws) with an empty task cache,
-  in-process ``run()``; 1 and 2 loky workers, and a 2-worker dask ``LocalCluster``
-  (``runner_dask_over_loky``).
+  in-process ``run()``; 1 and 2 loky workers (with the inline pilot, and with the pool from the
+  start), and a 2-worker dask ``LocalCluster`` (``runner_dask_over_loky``).
 * ``rerun_*``: after the cold run, a rerun with nothing new (in process, and as a fresh
   ``harness run`` subprocess, start-up included), a rerun into a new run directory (``--out``),
   and a rerun after one new release dated before the last origin; each as a share of the cold
@@ -126,6 +126,7 @@ def run(quick: bool = False) -> dict[str, float]:
         run_backtest(spec("warm"), jobs=2, **quiet)
         cold = {}
         for label, kw in (("1job", {"jobs": 1}), ("2jobs", {"jobs": 2}),
+                          ("2jobs_pool_only", {"jobs": 2, "inline_seconds": 0}),
                           ("dask_2workers", {"jobs": 2, "backend": "dask"})):
             t0 = time.perf_counter()
             res = run_backtest(spec(f"cold-{label}"), **kw, **quiet)
@@ -135,6 +136,8 @@ def run(quick: bool = False) -> dict[str, float]:
         out["runner_speedup_2_vs_1"] = cold["1job"] / cold["2jobs"]
         out["runner_speedup_target"] = 1.7
         out["runner_dask_over_loky_time_ratio"] = cold["dask_2workers"] / cold["2jobs"]
+        # what the inline pilot costs (or saves) on a run too large for it
+        out["runner_pilot_over_pool_only_time_ratio"] = cold["2jobs"] / cold["2jobs_pool_only"]
         ref = cold["2jobs"]
         main = spec("cold-2jobs")
 
