@@ -38,6 +38,7 @@ import fcntl
 import hashlib
 import json
 import os
+import re
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -316,7 +317,7 @@ class TaskCache:
             for run_dir in live_dirs:
                 try:
                     with run_dir_lock(run_dir):
-                        res.removable.extend((str(p), _size(p)) for p in stale_run_files(run_dir))
+                        res.removable.extend((str(p), _size(p)) for p in stale_run_files(run_dir, self.root))
                 except RunLockedError:
                     res.skipped.append(f"{run_dir}: a run is writing it")
                 except OSError as exc:
@@ -372,10 +373,18 @@ class TaskCache:
         return out
 
 
-def stale_run_files(run_dir: Path) -> list[Path]:
-    """Temporary files and ledger/provenance/diagnostics files ``run.json`` does not name."""
+_LEGACY_TASK = re.compile(r"^[0-9a-f]{32}\.(parquet|fail\.json)$")
+
+
+def stale_run_files(run_dir: Path, cache_root: Path | None = None) -> list[Path]:
+    """Temporary files and ledger/provenance/diagnostics files ``run.json`` does not name.
+
+    Also the task files of the in-run cache (``RUN/tasks/``) earlier versions kept, unless that
+    folder is the cache in use (``cache_root``) or the one the run's manifest names.
+    """
     run_dir = Path(run_dir)
     named: set[str] | None = set()  # None: a manifest exists but cannot be read (touch nothing)
+    man = None
     try:
         man = json.loads((run_dir / "run.json").read_text())
         named = {man.get(k) for k in ("ledger", "provenance", "diagnostics_file") if man.get(k)}
@@ -392,6 +401,14 @@ def stale_run_files(run_dir: Path) -> list[Path]:
         elif (named is not None and f.name.startswith(RUN_FILE_PREFIXES) and f.suffix == ".parquet"
               and f.name not in named):
             out.append(f)
+    legacy = run_dir / "tasks"
+    if named is not None and legacy.is_dir():
+        in_use = {Path(cache_root).resolve()} if cache_root is not None else set()
+        if isinstance(man, dict) and man.get("cache"):
+            in_use.add(Path(man["cache"]).resolve())
+        if legacy.resolve() not in in_use:
+            out.extend(f for f in legacy.iterdir()
+                       if f.is_file() and (_LEGACY_TASK.match(f.name) or f.name.startswith(TMP_PREFIX)))
     return sorted(out)
 
 

@@ -112,7 +112,9 @@ def test_clean_removes_only_what_no_run_uses(tmp_path, small_store):
     # files a killed writer leaves: temporary names in the cache and in a run directory,
     # and a ledger file no manifest names
     junk = [cache.root / "tasks" / "ab" / ".tmp-0123456789abcdef", cache.root / ".tmp-fedcba9876543210",
-            keep.run_dir / ".tmp-00aa00aa00aa00aa", keep.run_dir / "ledger-ffffffffffffffff.parquet"]
+            keep.run_dir / ".tmp-00aa00aa00aa00aa", keep.run_dir / "ledger-ffffffffffffffff.parquet",
+            # the in-run task cache of earlier versions
+            keep.run_dir / "tasks" / ("0123abcd" * 4 + ".parquet")]
     for f in junk:
         f.parent.mkdir(parents=True, exist_ok=True)
         f.write_bytes(b"partial")
@@ -121,6 +123,7 @@ def test_clean_removes_only_what_no_run_uses(tmp_path, small_store):
     res = cache.clean(apply=True)
     assert str(gone.run_dir.resolve()) in res.stale_runs
     assert not any(f.exists() for f in junk)
+    assert (keep.run_dir / "spec.toml").is_file() and (keep.run_dir / "run.json").is_file()
     assert not any(cache.has(k) for k in only_gone)
     assert all(cache.has(t["key"]) for t in keep.manifest.tasks)
     assert (keep.run_dir / keep.manifest.ledger).is_file()
@@ -285,3 +288,13 @@ def test_pseudo_real_time_plans_are_rebuilt_after_a_change(tmp_path, small_store
                                              "release": [last - pd.Timedelta(days=1)], "value": [99.0]}),
                                source="late.csv")
     assert make_plan(s).reused in ("", "cube")
+
+
+def test_clean_keeps_a_cache_kept_inside_its_run_directory(tmp_path, small_store):
+    """A run whose [run] cache is RUN/tasks (the earlier default) keeps its entries through a clean."""
+    s = _spec(tmp_path, small_store)
+    s = s.with_run(cache=s.out / "tasks")
+    first = run(s, jobs=1, progress=False)
+    res = TaskCache(s.cache_dir).clean(apply=True)
+    assert not res.removed
+    assert run(s, jobs=1, progress=False).computed == 0 and first.computed == first.total
