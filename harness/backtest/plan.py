@@ -285,11 +285,12 @@ def cube_digest(checksum: str, variables) -> str:
     return hashlib.sha256(json.dumps(payload, sort_keys=True).encode()).hexdigest()[:32]
 
 
-def _cube(spec: Spec, store, checksum: str):
-    """(cube, reused): the spec's release index from the cube cache when it holds this store state, else built and kept."""
+def _cube(cache_dir, variables, store, checksum: str):
+    """(cube, reused): the release index of ``variables`` from the cube cache when it holds this store state, else built and kept."""
     from vintages import Cube, StoreCorruptError
 
-    path = TaskCache(spec.cache_dir).cube_path(cube_digest(checksum, spec.variables))
+    variables = list(variables)
+    path = TaskCache(cache_dir).cube_path(cube_digest(checksum, variables))
     if path.is_file():
         try:
             cube = Cube.load(path)
@@ -297,13 +298,29 @@ def _cube(spec: Spec, store, checksum: str):
                 return cube, True
         except (StoreCorruptError, OSError):
             pass  # damaged: rebuilt below
-    cube = store.cube(variables=list(spec.variables))
+    cube = store.cube(variables=variables)
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         cube.save(path)
     except OSError:
         pass  # a cache that cannot be written only costs time
     return cube, False
+
+
+def release_index(store_path, variables, cache_dir):
+    """The release index of a store's current state for ``variables``, through the cube cache.
+
+    For commands that need the cube of the store as it is now (scoring reads the truths from
+    it): the store's checksum is read from its manifest (cheap); the cube comes from
+    ``cache_dir`` when it holds that state, else it is built and kept there.
+
+    Example: ``evaluate(run_dir, truth, cube=release_index(m.store, list(m.variables), m.cache))``
+    for a run manifest ``m``.
+    """
+    from vintages import VintageStore
+
+    store = VintageStore(store_path)
+    return _cube(cache_dir, variables, store, store.checksum())[0]
 
 
 def _plan_inputs(spec: Spec, store, checksum: str):
@@ -330,7 +347,7 @@ def _plan_inputs(spec: Spec, store, checksum: str):
                         time.perf_counter())
         except Exception:  # noqa: BLE001 - any damaged entry is rebuilt
             pass
-    cube, cube_reused = _cube(spec, store, checksum)
+    cube, cube_reused = _cube(spec.cache_dir, spec.variables, store, checksum)
     reused = "cube" if cube_reused else ""
     latest = cache.plan_dir() / f"latest-{inputs_digest(spec, '')}.json"
     update = _update_inputs(spec, cube, latest, cache) if spec.mode == "real-time" else None

@@ -298,3 +298,19 @@ def test_clean_keeps_a_cache_kept_inside_its_run_directory(tmp_path, small_store
     res = TaskCache(s.cache_dir).clean(apply=True)
     assert not res.removed
     assert run(s, jobs=1, progress=False).computed == 0 and first.computed == first.total
+
+
+def test_release_index_comes_from_the_cube_cache(tmp_path, small_store):
+    """release_index gives the store's cube (same as-of view) and keeps it in the cache for the next call."""
+    from harness.backtest.plan import cube_digest, release_index
+
+    cache = TaskCache(tmp_path / "c")
+    cube = release_index(small_store, ["gdp", "cpi"], cache.root)
+    st = VintageStore(small_store)
+    assert cache.cube_path(cube_digest(st.checksum(), ["gdp", "cpi"])).is_file()
+    again = release_index(small_store, ["cpi", "gdp"], cache.root)
+    ref = st.cube(variables=["gdp", "cpi"])
+    day = pd.Timestamp("2012-05-01")
+    a, b, c = cube.asof(day).to_frame(), again.asof(day).to_frame(), ref.asof(day).to_frame()
+    pd.testing.assert_frame_equal(a, c)
+    pd.testing.assert_frame_equal(b, c)
