@@ -17,9 +17,15 @@ from typing import Any
 from harness.errors import RunError
 from harness.spec.sections import ScoringSection
 
-FORMAT = "run-manifest/2"
-#: formats this version reads (the first wave wrote no format field: refused with a clear note)
-READABLE = (FORMAT,)
+FORMAT = "run-manifest/3"
+#: formats this version reads (the first wave wrote no format field: refused with a clear note).
+#: Format 3 added the draws' layout (the ledger's draws are sorted and delta-packed by default,
+#: which a reader of format 2 would misread), the diagnostics table, the diagnostic warnings and
+#: the task cache; a format-2 manifest reads with their defaults (plain float32 draws in draw
+#: order, no diagnostics).
+READABLE = ("run-manifest/2", FORMAT)
+#: fields a format-2 manifest lacks, and their values for it
+_ADDED_IN_3 = ("pools", "pool_warnings", "draws_layout", "diagnostics_file", "diagnostics_rows", "diagnostic_warnings", "cache")
 
 
 @dataclass(frozen=True)
@@ -29,7 +35,7 @@ class RunManifest:
     Attributes
     ----------
     format : str
-        ``run-manifest/2``.
+        ``run-manifest/3`` (``run-manifest/2`` is read too).
     name, created, spec, spec_hash : str
         The run's name, creation time (ISO), the spec file and the digest of its content.
     store, store_checksum : str
@@ -64,6 +70,19 @@ class RunManifest:
         File name of the pools' weights (origin, variable, horizon, model, weight, fallback), or ''.
     pool_warnings : tuple of dict
         The documented fallbacks the pools reported (equal weights until enough scored forecasts).
+    diagnostics : dict
+        Reserved (empty).
+    draws_layout : str
+        How the ledger stores draws: ``sorted`` (each cell ascending, delta-packed order keys),
+        ``joint`` (float32 in draw order) or ``float32`` (format 2); see
+        :mod:`harness.backtest.codec`.
+    diagnostics_file : str
+        File name of the per-task model diagnostics (model, origin, name, value, key); empty
+        when no model recorded any. ``diagnostics_rows`` its rows.
+    diagnostic_warnings : tuple of str
+        Messages of the registered diagnostic checks (:mod:`harness.backtest.diagnostics`).
+    cache : str
+        The task cache the run used (joint draws, resumption; ``harness cache clean``).
     """
 
     name: str
@@ -100,6 +119,11 @@ class RunManifest:
     diagnostics: dict[str, Any] = field(default_factory=dict)
     pools: str = ""
     pool_warnings: tuple[dict[str, Any], ...] = ()
+    draws_layout: str = "float32"
+    diagnostics_file: str = ""
+    diagnostics_rows: int = 0
+    diagnostic_warnings: tuple[str, ...] = ()
+    cache: str = ""
     format: str = FORMAT
 
     @property
@@ -134,16 +158,21 @@ class RunManifest:
                            "spec with 'harness run' to rebuild the run directory (the task cache is "
                            "reused)")
         names = {f.name for f in fields(cls)}
-        missing = sorted(n for n in names if n not in d and n not in ("diagnostics", "format", "pools",
-                                                                     "pool_warnings"))
+        optional = ("diagnostics", "format") + _ADDED_IN_3
+        missing = sorted(n for n in names if n not in d and n not in optional)
         if missing:
             raise RunError(f"{source}: run manifest lacks {missing}; the file is damaged or was not "
                            "written by harness")
         kw = {k: v for k, v in d.items() if k in names}
         kw["scoring"] = ScoringSection.from_dict(d["scoring"])
+        if fmt != FORMAT:  # format 2 wrote none of the fields added since
+            for k in _ADDED_IN_3:
+                kw.pop(k, None)
         kw.setdefault("pool_warnings", ())
         for k in ("models", "origins", "targets", "tasks", "failures", "pool_warnings"):
             kw[k] = tuple(kw[k])
+        kw["diagnostic_warnings"] = tuple(kw.get("diagnostic_warnings", ()))
+        kw["format"] = FORMAT if fmt == FORMAT else fmt
         kw["horizons"] = tuple(int(h) for h in kw["horizons"])
         kw["target_periods"] = tuple(tuple(x) for x in kw["target_periods"])
         return cls(**kw)

@@ -20,7 +20,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from harness.backtest.ledger import read_task, task_path, write_task
 
 
 @dataclass
@@ -33,8 +32,8 @@ class PoolOutcome:
     timings: dict[str, float] = field(default_factory=dict)
 
 
-def _member_draws(plan, cache: Path, members: list[str]) -> np.ndarray:
-    """(M, O, V, H, D) draws of the members from their task files (NaN where a task failed)."""
+def _member_draws(plan, cache, members: list[str]) -> np.ndarray:
+    """(M, O, V, H, D) draws of the members from their task files in the cache (NaN where a task failed)."""
     spec = plan.spec
     o, v, h = len(plan.origins), len(spec.targets.variables), len(spec.targets.horizons)
     out = np.full((len(members), o, v, h, spec.draws), np.nan, dtype=np.float32)
@@ -42,9 +41,9 @@ def _member_draws(plan, cache: Path, members: list[str]) -> np.ndarray:
     for mi, m in enumerate(members):
         for i in range(o):
             t = by[(m, i)]
-            if not task_path(cache, t.key).is_file():
+            if not cache.has(t.key):
                 continue
-            tab, _ = read_task(cache, t.key)
+            tab, _ = cache.read_task(t.key)
             vals = tab.column("draws").combine_chunks().flatten().to_numpy().reshape(tab.num_rows, -1)
             out[mi, i] = vals.reshape(v, h, -1)
     return out
@@ -82,15 +81,15 @@ def pool_seed(seed: int, name: str) -> int:
     return int(ss.generate_state(1)[0])
 
 
-def compute_pools(plan, cache: Path, records: dict[str, dict]) -> PoolOutcome:
+def compute_pools(plan, cache, records: dict[str, dict]) -> PoolOutcome:
     """Compute (or read from the cache) every pool of the spec; return task records per origin.
 
     Parameters
     ----------
     plan : Plan
         With ``plan.cube`` (the store's release index) and the models' tasks.
-    cache : Path
-        The task cache.
+    cache : TaskCache
+        The task cache (:class:`harness.backtest.cache.TaskCache`).
     records : dict
         The models' task records by key (status of each member task).
 
@@ -112,8 +111,9 @@ def compute_pools(plan, cache: Path, records: dict[str, dict]) -> PoolOutcome:
         truths = _truth_table(plan, pool.truth)
         pkey = _pool_key(spec, pool, mkeys, truths)
         okeys = [hashlib.sha256(f"{pkey}:{o}".encode()).hexdigest()[:32] for o in plan.origins]
-        weights_path = Path(cache) / f"{pkey}.pool.parquet"
-        cached = weights_path.is_file() and all(task_path(cache, k).is_file() for k in okeys)
+        weights_path = cache.root / "pools" / f"{pkey}.parquet"
+        meta_path = cache.root / "pools" / f"{pkey}.json"
+        cached = weights_path.is_file() and meta_path.is_file() and all(cache.has(k) for k in okeys)
         if not cached:
             from harness.pools import truth_grid
 
@@ -137,22 +137,23 @@ def compute_pools(plan, cache: Path, records: dict[str, dict]) -> PoolOutcome:
                                           "horizon": list(spec.targets.horizons)})
                 if not np.isfinite(da.values).all():
                     continue  # no member has a forecast here: the pool has none either
-                write_task(Path(cache), k, da, [str(p) for p in plan.targets[i].periods()],
+                cache.write_task(k, da, [str(p) for p in plan.targets[i].periods()],
                            {"model": pool.name, "origin": str(o), "key": k, "pool": pool.name,
                             "scheme": pool.scheme, "provenance": {}})
             w = _weights_table(pool.name, res, plan, members)
             from vintages import atomic_write_bytes
 
+            weights_path.parent.mkdir(parents=True, exist_ok=True)
             atomic_write_bytes(weights_path, w.to_parquet(index=False))
             warns = [dict(r, pool=pool.name) for r in res.warnings]
-            atomic_write_bytes(Path(cache) / f"{pkey}.pool.json",
+            atomic_write_bytes(meta_path,
                                (json.dumps({"warnings": warns, "params": res.params}, default=str) + "\n").encode())
         w = pd.read_parquet(weights_path)
-        meta = json.loads((Path(cache) / f"{pkey}.pool.json").read_text())
+        meta = json.loads(meta_path.read_text())
         out.warnings.extend(meta.get("warnings", []))
         frames.append(w)
         for o, k in zip(plan.origins, okeys, strict=True):
-            ok = task_path(cache, k).is_file()
+            ok = cache.has(k)
             out.records.append({"model": pool.name, "origin": str(o), "key": k, "cached": cached,
                                 "status": "ok" if ok else "failed", "elapsed": 0.0,
                                 **({} if ok else {"error": "no member has a forecast at this origin"})})

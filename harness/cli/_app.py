@@ -1,10 +1,16 @@
-"""The ``harness`` command: command groups joined with ``add_typer``."""
+"""The ``harness`` command: command groups joined with ``add_typer``.
+
+Start-up is kept short: help is plain text (``rich_markup_mode=None``: typer's rich formatter
+imports rich's Markdown stack, about 0.1 s, for help that uses no markup), and every numerical
+library is imported inside the commands that use it (``tests/architecture/test_import_time.py``
+checks each command).
+"""
 
 from __future__ import annotations
 
 import typer
 
-from harness.cli import vintages_cmd, workflow_cmd
+from harness.cli import cache_cmd, vintages_cmd, workflow_cmd
 
 app = typer.Typer(
     name="harness",
@@ -13,13 +19,21 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,
 )
+# the sub-application keeps its own markup mode: plain help there too (no rich import)
+vintages_cmd.app.rich_markup_mode = None
 app.add_typer(vintages_cmd.app, name="vintages", help="The vintage store: ingest, inspect, as-of views, revisions.")
+app.add_typer(cache_cmd.app, name="cache", help="The task cache shared by runs: where it is, what it holds, "
+              "cleaning it.")
 workflow_cmd.register(app)
 
 
 def main() -> None:
     """Entry point of the ``harness`` console script."""
+    from harness.backtest.process import defer_dask_probe_on_import
+
+    defer_dask_probe_on_import()  # this process builds no dask array: skip xarray's dask import
     app()
 
 

@@ -28,9 +28,10 @@ def friendly(func):
             return func(*args, **kwargs)
         except typer.Exit:
             raise
-        except KeyboardInterrupt:
+        except KeyboardInterrupt as exc:
             typer.echo("interrupted", err=True)
-            raise typer.Exit(code=130) from None
+            # 128 + the signal's number, as shells report it (SIGINT 130, SIGTERM 143)
+            raise typer.Exit(code=128 + getattr(exc, "signum", 2)) from None
         except (ValueError, KeyError, FileNotFoundError, FileExistsError, RuntimeError, OSError) as exc:
             if os.environ.get("HARNESS_DEBUG"):
                 raise  # HARNESS_DEBUG=1 shows the full traceback

@@ -74,6 +74,7 @@ from harness.spec.sections import (
     ScoringSection,
     SubPeriod,
     TargetsSection,
+    cache_location,
 )
 
 SECTION_KEYS = ("models", "origins", "pools", "run", "scoring", "targets", "variables")
@@ -143,7 +144,7 @@ class Spec:
 
     @property
     def cache_dir(self) -> Path:
-        return self.run.cache or (self.run.out / "tasks")
+        return cache_location(self.run)
 
     @property
     def benchmark(self) -> str:

@@ -8,6 +8,7 @@ accepted and a bad value is refused with the key, its line and the allowed value
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 from typing import Any
@@ -43,9 +44,33 @@ class RunSection:
     mode: str = key(Options("pseudo", "real-time"),
                     doc="real-time (the vintage of each origin) or pseudo (latest data cut at the "
                         "real-time ragged edge)", default="real-time")
-    cache: Path | None = key(Text(what="a path"), None, doc="task cache directory", default=None)
+    cache: Path | None = key(Text(what="a path"), None,
+                             doc="task cache directory, shared by every run of the store (default: "
+                                 "$HARNESS_CACHE, else .harness-cache beside the store)", default=None)
     name: str | None = key(Text(NAME, "a name (letters, digits, '_', '-')"), None,
                            doc="the run's name (default the spec file's stem)", default=None)
+
+
+#: environment variable naming the task cache of every spec that does not set ``[run] cache``
+CACHE_ENV = "HARNESS_CACHE"
+#: name of the default task cache, a sibling of the store directory
+CACHE_NAME = ".harness-cache"
+
+
+def cache_location(run: RunSection) -> Path:
+    """The task cache of a run: ``[run] cache``, else ``$HARNESS_CACHE``, else ``.harness-cache`` beside the store.
+
+    The default sits next to the store (never inside it: a store holds releases only), so every
+    spec and run directory on that store shares one cache, and on a cluster it is on the shared
+    storage wherever the store is. The spec's key is the most specific statement and wins; the
+    environment variable sets a per-machine or per-session default (e.g. a scratch disk).
+    """
+    if run.cache is not None:
+        return Path(run.cache)
+    env = os.environ.get(CACHE_ENV, "").strip()
+    if env:
+        return Path(env).expanduser().resolve()
+    return Path(run.store).parent / CACHE_NAME
 
 
 @dataclass(frozen=True)

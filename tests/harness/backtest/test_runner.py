@@ -1,4 +1,4 @@
-"""The runner: determinism across backends, resume after a kill, incremental reruns, failure isolation."""
+"""The runner: determinism across backends and inline runs, resume after a kill, incremental reruns, failure isolation."""
 
 from __future__ import annotations
 
@@ -22,13 +22,14 @@ from harness.spec import load_spec
 from tests.harness.conftest import write_spec
 from vintages.store import VintageStore
 
-ROOT = Path(__file__).resolve().parents[2]
+ROOT = Path(__file__).resolve().parents[3]
 
 
-def _spec(tmp_path, store, name="run", extra=""):
+def _spec(tmp_path, store, name="run", extra="", cache=None):
     d = tmp_path / name
     d.mkdir(parents=True, exist_ok=True)
-    return load_spec(write_spec(d, store, d / "out", extra))
+    s = load_spec(write_spec(d, store, d / "out", extra))
+    return s.with_run(cache=cache) if cache is not None else s
 
 
 def _draws(run_dir):
@@ -36,15 +37,22 @@ def _draws(run_dir):
 
 
 def test_ledgers_bit_identical_across_workers_and_backends(tmp_path, small_store):
-    """--jobs 1, --jobs 2 (loky) and a 2-worker dask LocalCluster give bit-identical draws."""
+    """--jobs 1, --jobs 2 (loky pool, and inline), a 2-worker dask LocalCluster give bit-identical draws."""
     pytest.importorskip("distributed")
-    a = run(_spec(tmp_path, small_store, "a"), jobs=1, progress=False)
-    b = run(_spec(tmp_path, small_store, "b"), jobs=2, progress=False)
-    c = run(_spec(tmp_path, small_store, "c"), jobs=2, backend="dask", progress=False)
-    da, db, dc = _draws(a.run_dir), _draws(b.run_dir), _draws(c.run_dir)
-    assert a.ok and b.ok and c.ok
-    assert np.isfinite(da).all()
-    assert da.tobytes() == db.tobytes() == dc.tobytes()
+    runs = [run(_spec(tmp_path, small_store, "a", cache=tmp_path / "ca"), jobs=1, progress=False),
+            run(_spec(tmp_path, small_store, "b", cache=tmp_path / "cb"), jobs=2, progress=False,
+                inline_seconds=0),
+            run(_spec(tmp_path, small_store, "c", cache=tmp_path / "cc"), jobs=2, backend="dask",
+                progress=False),
+            run(_spec(tmp_path, small_store, "d", cache=tmp_path / "cd"), jobs=2, progress=False)]
+    assert all(r.ok and r.computed == r.total for r in runs)
+    draws = [_draws(r.run_dir) for r in runs]
+    assert np.isfinite(draws[0]).all()
+    assert all(d.tobytes() == draws[0].tobytes() for d in draws[1:])
+    # the joint paths (task cache, draw order) agree too, and sort to the ledger's draws
+    joints = [read_ledger(r.run_dir).joint_draws().values for r in runs]
+    assert all(j.tobytes() == joints[0].tobytes() for j in joints[1:])
+    assert np.array_equal(np.sort(joints[0], axis=-1), draws[0])
 
 
 def test_rerun_uses_cache_only(tmp_path, small_store):
@@ -66,20 +74,21 @@ def test_resume_after_sigkill_matches_uninterrupted_run(tmp_path, small_store):
     cache = s.cache_dir
     deadline = time.time() + 120
     while time.time() < deadline:
-        done = len(list(cache.glob("*.parquet"))) if cache.is_dir() else 0
+        done = len(list(cache.glob("tasks/*/*.parquet"))) if cache.is_dir() else 0
         if done >= 10 or proc.poll() is not None:
             break
         time.sleep(0.05)
     assert proc.poll() is None, "the run finished before it could be interrupted"
     proc.send_signal(signal.SIGKILL)
     proc.wait()
-    before = {p.name for p in cache.glob("*.parquet")}
+    before = {p.name for p in cache.glob("tasks/*/*.parquet")}
     assert 10 <= len(before) < len(make_plan(s).tasks)
     lines = []
     resumed = run(s, jobs=1, progress=False, log=lines.append)
     assert resumed.cached == len(before) and resumed.computed == resumed.total - len(before)
     assert f"{len(before)} from cache" in lines[0]
-    clean = run(_spec(tmp_path, small_store, "clean", extra), jobs=1, progress=False)
+    clean = run(_spec(tmp_path, small_store, "clean", extra, cache=tmp_path / "other"), jobs=1, progress=False)
+    assert clean.computed == clean.total
     assert _draws(resumed.run_dir).tobytes() == _draws(clean.run_dir).tobytes()
 
 
