@@ -328,6 +328,46 @@ class Ledger:
         f["ok"] = ~np.isnan(d.values[..., 0]).reshape(-1)
         return f
 
+    def quantiles(self, levels=(0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95), *, mean: bool = True) -> pd.DataFrame:
+        """The forecasts as a tidy table of quantiles: one row per forecast and level.
+
+        Quantiles are the empirical quantiles of each cell's draws (linear interpolation
+        between order statistics, numpy's default, Hyndman and Fan 1996 definition 7). Cells of
+        failed or unrun tasks are left out.
+
+        Parameters
+        ----------
+        levels : sequence of float in (0, 1)
+        mean : bool
+            Also add the draws' mean and standard deviation as the columns ``mean`` and ``sd``.
+
+        Returns
+        -------
+        DataFrame
+            model (str), origin (datetime64), variable (str), horizon (int64), target_period
+            (str), quantile (float64), value (float64) [, mean, sd (float64)].
+        """
+        levels = np.asarray(list(levels), dtype=np.float64)
+        if levels.size == 0 or not np.all((levels > 0) & (levels < 1)):
+            raise ValueError(f"quantile levels must lie strictly between 0 and 1, got {levels.tolist()}")
+        levels = np.unique(levels)
+        f = self.frame()
+        values = np.asarray(self.draws.values, dtype=np.float64).reshape(len(f), -1)
+        ok = f["ok"].to_numpy()
+        f, values = f.loc[ok].reset_index(drop=True), values[ok]
+        q = np.quantile(values, levels, axis=1).T if len(f) else np.empty((0, levels.size))
+        out = f.drop(columns="ok").loc[np.repeat(np.arange(len(f)), levels.size)].reset_index(drop=True)
+        out["model"] = out["model"].astype(str)
+        out["variable"] = out["variable"].astype(str)
+        out["horizon"] = out["horizon"].astype(np.int64)
+        out["target_period"] = out["target_period"].astype(str)
+        out["quantile"] = np.tile(levels, len(f))
+        out["value"] = q.reshape(-1)
+        if mean:
+            out["mean"] = np.repeat(values.mean(axis=1), levels.size) if len(f) else np.empty(0)
+            out["sd"] = np.repeat(values.std(axis=1, ddof=1), levels.size) if len(f) else np.empty(0)
+        return out
+
     def joint_draws(self, models=None, cache: str | Path | None = None):
         """The draws in the order each model made them (joint paths), from the task cache.
 

@@ -15,11 +15,9 @@ import json
 import time
 import zlib
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
-
 
 
 @dataclass

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import typer
 
-from harness.cli import cache_cmd, vintages_cmd, workflow_cmd
+from harness.cli import cache_cmd, ledger_cmd, vintages_cmd, workflow_cmd
 
 app = typer.Typer(
     name="harness",
@@ -26,6 +26,7 @@ vintages_cmd.app.rich_markup_mode = None
 app.add_typer(vintages_cmd.app, name="vintages", help="The vintage store: ingest, inspect, as-of views, revisions.")
 app.add_typer(cache_cmd.app, name="cache", help="The task cache shared by runs: where it is, what it holds, "
               "cleaning it.")
+app.add_typer(ledger_cmd.app, name="ledger", help="A run's stored forecasts: tidy exports of quantiles.")
 workflow_cmd.register(app)
 
 
