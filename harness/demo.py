@@ -172,67 +172,109 @@ def write_demo_data(out: Path, *, small: bool = False) -> Path:
     return out / "spec.toml"
 
 
-def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: int | None = None, echo=print) -> dict:
-    """Run the whole demo; return the paths it wrote."""
+def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: int | None = None, echo=print,
+             display=None) -> dict:
+    """Run the whole demo; return the paths it wrote.
+
+    ``echo`` prints the demo's results (tables, statements, paths); ``display``
+    (:class:`harness.ui.Display`) shows the stages on standard error (default: a display; quiet
+    silences both).
+    """
+    from harness.ui import Display
+
+    ui = display or Display()
+    say = echo if not ui.quiet else (lambda *_: None)
     t0 = time.perf_counter()
     out = Path(out)
-    spec_path = write_demo_data(out, small=small)
-    echo(f"demo data: store {out / 'store'}, chronology {out / 'chronology.csv'}, spec {spec_path} "
-         f"({time.perf_counter() - t0:.1f}s)")
+    with ui.stage("simulating the invented Veldmark economy and writing its vintage store"):
+        spec_path = write_demo_data(out, small=small)
+    say(f"demo data: store {out / 'store'}, chronology {out / 'chronology.csv'}, spec {spec_path} "
+        f"({time.perf_counter() - t0:.1f}s)")
     paths = {"store": out / "store", "spec": spec_path, "chronology": out / "chronology.csv"}
     if data_only:
-        echo("stopped after the data (--data-only); run the backtest with: harness run " + str(spec_path))
+        say("stopped after the data (--data-only); run the backtest with: harness run " + str(spec_path))
         return paths
-    paths.update(run_pipeline(spec_path, out, jobs=jobs, echo=echo))
-    paths.update(run_nowcast(out / "nowcast.toml", out, jobs=jobs, echo=echo))
-    echo(f"demo finished in {time.perf_counter() - t0:.1f}s")
-    echo(f"report: {Path(paths['report']).resolve()}")
-    echo(f"nowcasting report: {Path(paths['nowcast_report']).resolve()}")
+    paths.update(run_pipeline(spec_path, out, jobs=jobs, echo=say, display=ui))
+    paths.update(run_nowcast(out / "nowcast.toml", out, jobs=jobs, echo=say, display=ui))
+    say(f"demo finished in {time.perf_counter() - t0:.1f}s")
+    say(f"report: {Path(paths['report']).resolve()}")
+    say(f"appendix: {Path(paths['appendix']).resolve()}")
+    say(f"nowcasting report: {Path(paths['nowcast_report']).resolve()}")
     return paths
 
 
-def run_nowcast(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print) -> dict:
-    """The monthly-origin nowcasting backtest → its decision table → its report."""
+def run_nowcast(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print, display=None) -> dict:
+    """The monthly-origin nowcasting backtest → its decision table → its report (``RUN/report``)."""
     from harness.backtest import run
+    from harness.backtest.ledger import read_ledger
     from harness.evaluation import evaluate
     from harness.report.make import make_report
+    from harness.report.terminal import decision_text
     from harness.spec import load_spec
+    from harness.ui import Display, run_summary
+    from harness.verdicts import decide
 
+    ui = display or Display()
     spec = load_spec(spec_path)
-    echo(f"nowcasting backtest: {len(spec.models)} models at the day after each ip release, "
-         f"{spec.draws} draws per forecast")
-    res = run(spec, jobs=jobs)
-    echo(res.summary())
-    ev = evaluate(res.run_dir)
-    rep = make_report(res.run_dir, out=Path(out) / "nowcast" / "report", evaluation=ev, echo=echo)
+    with ui.stage(f"nowcasting backtest: {len(spec.models)} models at the day after each ip release, "
+                  f"{spec.draws} draws per forecast", live=False):
+        res = run(spec, jobs=jobs, progress=not ui.quiet, log=ui.labelled("nowcasting run"))
+    echo(run_summary(res))
+    with ui.stage("scoring the nowcasts"):
+        ledger = read_ledger(res.run_dir)
+        ev = evaluate(ledger)
+        verdicts = decide(ev)
+    echo(decision_text(verdicts, variables=list(spec.targets.variables)))
+    rep = make_report(res.run_dir, evaluation=ev, display=ui, verdicts=verdicts, ledger=ledger)
     return {"nowcast_run": res.run_dir, "nowcast_report": rep["html"]}
 
 
-def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print) -> dict:
-    """spec → run (with progress) → scores → sensitivity → report; return the paths written."""
+def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print, display=None) -> dict:
+    """spec → run (with progress) → scores → sensitivity → report; return the paths written.
+
+    The terminal shows what ``harness score`` and ``harness sensitivity`` show (the decision view,
+    one score table per target, the truths side by side); the report goes where ``harness
+    report`` writes it, ``RUN/report``.
+    """
     from harness.backtest import run
+    from harness.backtest.ledger import read_ledger
     from harness.evaluation import evaluate, save
     from harness.evaluation.sensitivity import sensitivity
     from harness.report.make import make_report
-    from harness.report.terminal import relative_text
+    from harness.report.terminal import decision_text, relative_text, sensitivity_lines
+    from harness.report.textout import render
+    from harness.report.truths import truths_table
     from harness.spec import load_spec
+    from harness.ui import Display
+    from harness.verdicts import decide
 
+    ui = display or Display()
     spec = load_spec(spec_path)
-    echo(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast")
-    res = run(spec, jobs=jobs)
-    echo(res.summary())
+    with ui.stage(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast", live=False):
+        res = run(spec, jobs=jobs, progress=not ui.quiet, log=ui.labelled("real-time run"))
+    from harness.ui import run_summary
+
+    echo(run_summary(res))
     paths = {"run": res.run_dir}
-    t1 = time.perf_counter()
-    ev = evaluate(res.run_dir)
-    save(ev, res.run_dir / "scores")
-    echo(relative_text(ev, "crps", subperiods=["full", "recession"]))
-    echo(f"scores ({time.perf_counter() - t1:.1f}s) in {res.run_dir / 'scores'}")
-    t2 = time.perf_counter()
-    echo("revision sensitivity: scoring under several truths and rerunning on revised (pseudo-real-time) data")
-    sens = sensitivity(spec, run_dir=res.run_dir, jobs=jobs, progress=True)
-    sens.save(res.run_dir / "sensitivity")
-    echo(sens.summary())
-    echo(f"sensitivity ({time.perf_counter() - t2:.1f}s) in {res.run_dir / 'sensitivity'}")
-    rep = make_report(res.run_dir, out=Path(out) / "report", sensitivity=sens, evaluation=ev, echo=echo)
+    with ui.stage("scoring under the spec's truth (scores and tests)"):
+        ledger = read_ledger(res.run_dir)  # read once: scoring and the report's charts share it
+        ev = evaluate(ledger)
+        save(ev, res.run_dir / "scores")
+    with ui.stage("revision sensitivity: scoring under every truth, then the revised-data rerun", live=False):
+        sens = sensitivity(spec, run_dir=res.run_dir, jobs=jobs, progress=not ui.quiet,
+                           log=ui.labelled("revised-data rerun"))
+        sens.save(res.run_dir / "sensitivity")
+    with ui.stage("deciding: band tests, best set, calibration, truths"):
+        verdicts = decide(ev, sensitivity=sens)
+    echo(decision_text(verdicts, variables=list(spec.targets.variables)))
+    echo(relative_text(ev, "crps"))
+    echo(f"scores in {res.run_dir / 'scores'}")
+    echo(render([truths_table(sens, ev.benchmark, variables=list(spec.targets.variables))], "text",
+                caution=False).rstrip())
+    for line in sensitivity_lines(sens):
+        echo(line)
+    echo(f"sensitivity tables in {res.run_dir / 'sensitivity'}")
+    rep = make_report(res.run_dir, sensitivity=sens, evaluation=ev, display=ui, verdicts=verdicts, ledger=ledger)
     paths["report"] = rep["html"]
+    paths["appendix"] = rep["appendix"]
     return paths

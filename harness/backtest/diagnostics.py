@@ -11,7 +11,11 @@ back as :attr:`harness.backtest.Ledger.diagnostics`.
 Warnings: the run summary calls :func:`diagnostic_warnings` with that table; it returns the
 messages of every check registered with :func:`register_diagnostic_check` (thresholds and rules
 belong to the checks, none ship here). The run records the messages in its manifest
-(``diagnostic_warnings``) and prints them after the summary line.
+(``diagnostic_warnings``) and prints them after the summary line; the report shows them too.
+
+One check ships: :func:`mcmc_convergence_check`, for every model that records the summary of
+:func:`harness.models.mcmc.mcmc_diagnostics` (``converged``, ``min_ess``, ``max_rhat`` and the
+thresholds it applied, ``ess_min`` and ``rhat_max``).
 """
 
 from __future__ import annotations
@@ -91,3 +95,39 @@ def diagnostic_warnings(table) -> list[str]:
             name = getattr(check, "__qualname__", repr(check))
             out.append(f"diagnostic check {name} failed: {type(exc).__name__}: {exc}")
     return out
+
+
+def mcmc_convergence_check(table) -> list[str]:
+    """One warning per model whose sampler missed its ESS or split-R-hat threshold at some origin.
+
+    Reads the rows ``converged``, ``min_ess``, ``max_rhat``, ``ess_min`` and ``rhat_max`` that
+    :func:`harness.models.mcmc.mcmc_diagnostics` puts into a model's ``diagnostics_``
+    (thresholds: Vehtari et al. 2021, as recorded by the model). Models without them are left
+    alone.
+    """
+    if table is None or not len(table):
+        return []
+    names = {"converged", "min_ess", "max_rhat", "ess_min", "rhat_max"}
+    t = table[table["name"].isin(names)]
+    if not len(t) or "converged" not in set(t["name"]):
+        return []
+    out = []
+    for model, g in t.groupby("model", sort=True):
+        w = g.pivot_table(index="origin", columns="name", values="value", aggfunc="first")
+        if "converged" not in w:
+            continue
+        bad = w[w["converged"] < 0.5]
+        if not len(bad):
+            continue
+        parts = []
+        if "min_ess" in w and "ess_min" in w:
+            parts.append(f"lowest ESS {bad['min_ess'].min():.0f} (threshold {w['ess_min'].max():.0f})")
+        if "max_rhat" in w and "rhat_max" in w:
+            parts.append(f"highest split R-hat {bad['max_rhat'].max():.3f} (threshold {w['rhat_max'].max():.2f})")
+        out.append(f"{model}: MCMC diagnostics below threshold at {len(bad)} of {len(w)} origins"
+                   + (f" — {', '.join(parts)}" if parts else "")
+                   + "; its draws may not represent the posterior (raise n_iter, thin or chains)")
+    return out
+
+
+register_diagnostic_check(mcmc_convergence_check)

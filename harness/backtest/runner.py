@@ -43,8 +43,8 @@ from harness.backtest.ledger import DEFAULT_LAYOUT, assemble, ledger_digest, rem
 from harness.backtest.manifest import RunManifest
 from harness.backtest.plan import Plan, make_plan
 from harness.backtest.process import interrupt_signals
-from harness.backtest.progress import Progress
 from harness.spec import Spec
+from harness.ui.progress import Progress
 
 BACKENDS = ("dask", "loky", "sequential", "threading")
 

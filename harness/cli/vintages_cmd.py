@@ -14,7 +14,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import LOCKED_ERROR, USAGE_ERROR, echo_table, fail, friendly
+from harness.cli._common import LOCKED_ERROR, USAGE_ERROR, fail, friendly
 
 app = typer.Typer(no_args_is_help=True, add_completion=False)
 
@@ -31,8 +31,28 @@ class FreqOpt(str, Enum):
 
 
 class TableFormat(str, Enum):
-    table = "table"
+    text = "text"
+    md = "md"
+    tex = "tex"
     csv = "csv"
+    parquet = "parquet"
+    table = "table"  # the earlier name of text, kept for scripts
+
+
+_FORMAT_HELP = ("text (aligned, ready to paste), md, tex, csv or parquet (to a file only); default: from the "
+                "--out suffix, else text.")
+OutOpt = Annotated[Path | None, typer.Option(help="Write the table to this file (atomically) instead of the "
+                                             "terminal.")]
+
+
+def _fmt(fmt, out) -> str:
+    """The output format, checked before any work (a bad one is a usage error, exit 2)."""
+    from harness.report.textout import FormatError, resolve_format
+
+    try:
+        return resolve_format(fmt.value if fmt is not None else None, out)
+    except FormatError as exc:
+        fail(str(exc), code=USAGE_ERROR)
 
 
 class ExportFormat(str, Enum):
@@ -146,20 +166,28 @@ def ingest_cmd(
 
 @app.command("info")
 @friendly
-def info_cmd(store: StoreArg) -> None:
+def info_cmd(
+    store: StoreArg,
+    fmt: Annotated[TableFormat | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
+    out: OutOpt = None,
+) -> None:
     """Summarise STORE: variables, frequencies, periods and releases held, checksum.
 
     Reading verifies the manifest and every batch file's checksum (a mismatch stops with exit
     1); files the manifest does not list are shown as notes.
     """
+    from harness.report.textout import emit, frame_table
     from vintages import VintageStore
 
+    f = _fmt(fmt, out)
     st = VintageStore(store)
     m = st.manifest()
     table = st.info()
-    typer.echo(f"store {store}: {len(m['variables'])} variables, {len(m['batches'])} batches, "
-               f"{len(m['audit'])} superseded values; checksum {st.checksum()[:16]}")
-    echo_table(table.drop(columns=["description"], errors="ignore"))
+    head = (f"store {store}: {len(m['variables'])} variables, {len(m['batches'])} batches, "
+            f"{len(m['audit'])} superseded values; checksum {st.checksum()[:16]}")
+    if f == "text":
+        table = table.drop(columns=["description"], errors="ignore")
+    emit([frame_table(table, head, name="store_info")], f, out, caution=False)
     _notes(st, m)
 
 
@@ -243,14 +271,20 @@ def asof_cmd(
     store: StoreArg,
     date: Annotated[str, typer.Argument(help="Calendar day YYYY-MM-DD: show what was known on that day.")],
     variable: Annotated[list[str] | None, typer.Option(help="Only these variables (repeatable).")] = None,
-    fmt: Annotated[TableFormat, typer.Option("--format", help="table or csv (variable,period,value).")] = TableFormat.table,
+    fmt: Annotated[TableFormat | None, typer.Option("--format", help=_FORMAT_HELP + " CSV and Parquet hold every "
+                                                    "value (variable, period, value).")] = None,
     release: Annotated[bool, typer.Option("--with-release", help="Add the release date each value comes from.")] = False,
+    every: Annotated[bool, typer.Option("--all", help="Every value known that day, not the summary (text, md, "
+                                        "tex).")] = False,
+    out: OutOpt = None,
 ) -> None:
-    """Print the information known on DATE: each value's latest release on or before that day."""
+    """What was known on DATE: per variable its last period and release (the ragged edge); --all for every value."""
     import pandas as pd
 
+    from harness.report.textout import emit, frame_table
     from vintages import VintageStore
 
+    f = _fmt(fmt, out)
     try:
         day = pd.Timestamp(date)
     except ValueError:
@@ -258,13 +292,15 @@ def asof_cmd(
     cube = VintageStore(store).cube(variables=variable or None)
     df = cube.asof(day).to_frame()
     cols = ["variable", "period", "value"] + (["release"] if release else [])
-    if fmt is TableFormat.table:
-        last = df.groupby("variable", sort=True).agg(last_period=("period", "last"), last_release=("release", "max"),
-                                                      values=("value", "size")).reset_index()
-        typer.echo(f"known on {day.date()}: ragged edge")
-        echo_table(last)
-        typer.echo("")
-    echo_table(df[cols], fmt.value)
+    if f in ("csv", "parquet") or every:
+        # data formats carry every value; the summary is for reading
+        emit([frame_table(df[cols], f"known on {day.date()}: every value", name="asof")], f, out, caution=False)
+        return
+    last = df.groupby("variable", sort=True).agg(
+        first_period=("period", "first"), last_period=("period", "last"), values=("value", "size"),
+        last_release=("release", "max"), last_value=("value", "last")).reset_index()
+    emit([frame_table(last, f"known on {day.date()}: the ragged edge (last period and release per variable; "
+                      "--all for every value)", name="asof_summary")], f, out, caution=False)
 
 
 @app.command("export")
@@ -286,25 +322,40 @@ def export_cmd(
 @friendly
 def revisions_cmd(
     store: StoreArg,
-    variable: Annotated[str, typer.Argument(help="Variable to analyse.")],
+    variables: Annotated[list[str], typer.Argument(metavar="VARIABLE...", help="Variables to analyse.")],
     frm: Annotated[str, typer.Option("--from", help="Earlier estimate: first, release:K, lag:NNND.")] = "first",
     to: Annotated[str, typer.Option("--to", help="Later estimate: latest, release:K, lag:NNND, asof:DATE.")] = "latest",
     transform: Annotated[str | None, typer.Option(help="Transformation inside each vintage (level, diff, dlog, "
                                                   "dlog_ann, yoy); default: the variable's transform hint "
                                                   "(see 'describe'), else dlog_ann for an index, level for a rate.")] = None,
-    fmt: Annotated[TableFormat, typer.Option("--format", help="table or csv.")] = TableFormat.table,
+    fmt: Annotated[TableFormat | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
+    out: OutOpt = None,
 ) -> None:
-    """Revision statistics and news-versus-noise regressions for VARIABLE between two estimates."""
+    """Revision statistics and news-versus-noise regressions between two estimates, with a one-line reading each."""
+    import pandas as pd
+
+    from harness.report.readings import revision_reading
+    from harness.report.textout import emit, frame_table
     from vintages import VintageStore, revisions_table
 
+    f = _fmt(fmt, out)
     st = VintageStore(store)
-    if transform is None:
-        transform = (st.variables.get(variable) or {}).get("transform_hint") or None
-    table = revisions_table(st.cube(), variable, transform=transform, frm=frm, to=to)
-    if fmt is TableFormat.csv:
-        echo_table(table, "csv")
+    cube = st.cube()
+    rows = []
+    for v in variables:
+        tr = transform if transform is not None else ((st.variables.get(v) or {}).get("transform_hint") or None)
+        rows.append(revisions_table(cube, v, transform=tr, frm=frm, to=to))
+    table = pd.concat(rows, ignore_index=True)
+    title = (f"Revisions from '{frm}' to '{to}' (news vs noise: Mankiw & Shapiro 1986; noise slope = revision on "
+             "the later estimate, news slope = revision on the earlier one; HAC standard errors)")
+    readings = [revision_reading(r) for r in table.to_dict("records")]
+    if f in ("csv", "parquet"):
+        emit([frame_table(table, title, name="revisions")], f, out, caution=False)
         return
-    typer.echo(f"Revisions of {variable} from '{frm}' to '{to}' (news vs noise: Mankiw & Shapiro 1986; "
-               "noise slope = revision on the later estimate, news slope = revision on the earlier one; "
-               "HAC standard errors)")
-    typer.echo(table.set_index("variable").T.to_string())
+    # statistics as rows, one column per variable, rounded to 3 significant digits for reading
+    shown = table.set_index("variable").T
+    shown = shown.map(lambda x: f"{x:.3g}" if isinstance(x, float) else str(x))
+    shown = shown.reset_index().rename(columns={"index": "statistic"})
+    shown.columns.name = None
+    emit([frame_table(shown, title, name="revisions")], f, out, caution=False,
+         extra_lines=["Reading (level 0.05):"] + [f"  {r}" for r in readings] if f in ("text", "md") else ())

@@ -31,14 +31,37 @@ SpecArg = Annotated[Path, typer.Argument(help="The backtest spec (TOML).")]
 RunArg = Annotated[Path, typer.Argument(help="A run directory written by 'harness run'.")]
 
 
+_BACKEND_HELP = ("joblib backend: loky (local processes, the default), dask (a dask.distributed cluster), "
+                 "threading or sequential (one process, for debugging).")
+_FORMAT_HELP = ("Output format: text (aligned, ready to paste), md, tex, csv or parquet (to a file only). "
+                "Default: from the --out suffix, else text.")
+
+
+def _fmt(fmt: str | None, out: Path | None) -> str:
+    """The output format, checked before any work (a bad one is a usage error, exit 2)."""
+    from harness.cli._common import USAGE_ERROR, fail
+    from harness.report.textout import FormatError, resolve_format
+
+    try:
+        return resolve_format(fmt, out)
+    except FormatError as exc:
+        fail(str(exc), code=USAGE_ERROR)
+
+
+def _display(quiet: bool):
+    from harness.ui import Display
+
+    return Display(quiet=quiet)
+
+
 @friendly
 def run_cmd(
     spec: SpecArg,
     jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1, help="Parallel workers (default: all cores).")] = None,
-    backend: Annotated[Backend, typer.Option(help="loky (local processes) or dask (a dask.distributed cluster).")] = Backend.loky,
+    backend: Annotated[Backend, typer.Option(metavar="BACKEND", show_choices=False, help=_BACKEND_HELP)] = Backend.loky,
     scheduler: Annotated[str | None, typer.Option(help="Address of a dask scheduler (tcp://host:8786); "
                                                   "without it --backend dask starts a local cluster.")] = None,
-    out: Annotated[Path | None, typer.Option(help="Run directory (overrides [run] out).")] = None,
+    out: Annotated[Path | None, typer.Option(help="Run directory (overrides the spec's \\[run] out).")] = None,
     explain: Annotated[bool, typer.Option("--explain", help="Print the resolved plan and stop.")] = False,
     retry_failed: Annotated[bool, typer.Option("--retry-failed", help="Recompute tasks that failed before.")] = False,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress output.")] = False,
@@ -65,11 +88,18 @@ def demo_cmd(
     data_only: Annotated[bool, typer.Option("--data-only", help="Only write the demo store, chronology and spec.")] = False,
     small: Annotated[bool, typer.Option("--small", help="A reduced run (fewer origins and draws) for a quick look.")] = False,
     jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1, help="Parallel workers (default: all cores).")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors.")] = False,
 ) -> None:
     """The invented Veldmark economy end to end: store → spec → run → scores → sensitivity → report."""
     from harness.demo import run_demo
 
-    run_demo(out, data_only=data_only, small=small, jobs=jobs, echo=typer.echo)
+    run_demo(out, data_only=data_only, small=small, jobs=jobs, echo=typer.echo, display=_display(quiet))
+
+
+class TableChoice(str, Enum):
+    all = "all"
+    decision = "decision"
+    scores = "scores"
 
 
 @friendly
@@ -77,64 +107,119 @@ def score_cmd(
     run_dir: RunArg,
     truth: Annotated[str | None, typer.Option(help="Truth to score against: first, release:K, lag:NNND, latest, "
                                               "asof:YYYY-MM-DD (default: the spec's).")] = None,
-    out: Annotated[Path | None, typer.Option(help="Write the per-forecast scores to this CSV file "
-                                             "(tables beside it).")] = None,
-    score: Annotated[str, typer.Option(help="Score shown in the terminal tables: " + _SCORE_CHOICES + ".")] = "crps",
+    score: Annotated[str, typer.Option(help="Score of the tables: " + _SCORE_CHOICES + ".")] = "crps",
     benchmark: Annotated[str | None, typer.Option(help="The incumbent every model is set against (a model of the "
                                                   "run; default the spec's). No refit.")] = None,
+    subperiod: Annotated[list[str] | None, typer.Option(help="Sub-period of the score tables (repeatable): full, "
+                                                        "recession, expansion or a name of \\[scoring.subperiods]; "
+                                                        "default full.")] = None,
+    table: Annotated[TableChoice, typer.Option(help="What to show: all (the decision view and one score table per "
+                                               "target), decision or scores. CSV and Parquet hold one table: "
+                                               "scores unless --table decision.")] = TableChoice.all,
+    fmt: Annotated[str | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
+    out: Annotated[Path | None, typer.Option(help="Write the tables to this file instead of the terminal.")] = None,
+    save_scores: Annotated[Path | None, typer.Option("--save-scores", help="Also write every per-forecast score "
+                                                     "and the evaluation's tables (CSV) to this directory.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress on standard error.")] = False,
 ) -> None:
-    """Score a run against a truth (no refitting) and print relative-score tables with tests."""
+    """Score a run against a truth (no refitting): the decision view, then one score table per target."""
     from harness.cli._common import USAGE_ERROR, fail
     from harness.scores.registry import resolve
 
     col = resolve(score)
     if col is None or not col.is_loss:
         fail(f"unknown score {score!r}; expected one of {_SCORE_CHOICES}", code=USAGE_ERROR)
+    f = _fmt(fmt, out)
+    ui = _display(quiet)
+    if truth is not None:
+        from vintages import parse_truth
 
-    from harness.evaluation import evaluate, save, write_forecasts
-    from harness.report.terminal import decision_text, relative_text
+        parse_truth(truth)  # a bad rule is refused before any work (and before any progress line)
 
-    ev = evaluate(run_dir, truth, benchmark=benchmark)
-    from harness.verdicts import decide
+    from harness.evaluation import evaluate, save
+    from harness.report.terminal import decision_table, score_header, score_tables
+    from harness.report.textout import Lines, emit
 
-    typer.echo(decision_text(decide(ev)))
-    typer.echo(relative_text(ev, score))
-    typer.echo(f"sub-periods: recession/expansion from {ev.chronology_source}")
-    if "Harding" in ev.chronology_source and len(ev.turning_points):
-        typer.echo("dated turning points (peak → trough):")
-        for _, r in ev.turning_points.iterrows():
-            typer.echo(f"  {r['peak'] if r['peak'] == r['peak'] else '…'} → "
-                       f"{r['trough'] if r['trough'] == r['trough'] else '(open)'}")
-    if len(ev.missing):
-        typer.echo(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
-    if out is not None:
-        write_forecasts(ev, out)
-        save(ev, out.parent / (out.stem + "_tables"))
-        typer.echo(f"wrote {out} and tables in {out.parent / (out.stem + '_tables')}")
+    with ui.stage(f"scoring {run_dir} (scores and tests)"):
+        ev = evaluate(run_dir, truth, benchmark=benchmark)
+    subs = subperiod or ["full"]
+    unknown = sorted(set(subs) - set(ev.subperiod_names))
+    if unknown:
+        fail(f"unknown sub-period(s) {unknown}; expected one of {sorted(ev.subperiod_names)}", code=USAGE_ERROR)
+    tables = []
+    if table in (TableChoice.all, TableChoice.decision) and not (f in ("csv", "parquet") and table is TableChoice.all):
+        from harness.verdicts import decide
+
+        with ui.stage("deciding: band tests, best set, calibration"):
+            from harness.report.sections import _variables
+
+            tables.append(decision_table(decide(ev), variables=_variables(ev)))
+    if table in (TableChoice.all, TableChoice.scores):
+        if f not in ("csv", "parquet"):
+            tables.append(Lines(score_header(ev, score)))
+        tables += score_tables(ev, score, subs)
+    lines = []
+    if f in ("text", "md"):
+        lines = [f"sub-periods: recession/expansion from {ev.chronology_source}"]
+        if "Harding" in ev.chronology_source and len(ev.turning_points):
+            lines.append("dated turning points (peak → trough): " + "; ".join(
+                f"{r['peak'] if r['peak'] == r['peak'] else '…'} → {r['trough'] if r['trough'] == r['trough'] else '(open)'}"
+                for _, r in ev.turning_points.iterrows()))
+        if len(ev.missing):
+            lines.append(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
+    _, written = emit(tables, f, out, extra_lines=lines)
+    if written is not None:
+        ui.log(f"wrote {written}")
+    if save_scores is not None:
+        with ui.stage(f"writing every per-forecast score and table to {save_scores}"):
+            save(ev, save_scores)
 
 
 @friendly
 def sensitivity_cmd(
     spec: SpecArg,
     truth: Annotated[list[str] | None, typer.Option(help="Truths to compare (repeatable); default: the spec's "
-                                                    "[scoring] truths.")] = None,
+                                                    "\\[scoring] truths.")] = None,
     jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1, help="Parallel workers.")] = None,
-    backend: Annotated[Backend, typer.Option(help="joblib backend for the pseudo-real-time rerun.")] = Backend.loky,
-    out: Annotated[Path | None, typer.Option(help="Directory for the CSV tables (default: RUN/sensitivity).")] = None,
+    backend: Annotated[Backend, typer.Option(metavar="BACKEND", show_choices=False, help=_BACKEND_HELP)] = Backend.loky,
+    tables_dir: Annotated[Path | None, typer.Option("--tables-dir", help="Directory for the CSV tables (default: "
+                                                    "RUN/sensitivity, where 'harness report' reads them).")] = None,
     no_data: Annotated[bool, typer.Option("--no-data-check", help="Skip the pseudo-real-time rerun.")] = False,
     benchmark: Annotated[str | None, typer.Option(help="The incumbent every model is set against (default the "
                                                   "spec's). No refit.")] = None,
+    fmt: Annotated[str | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
+    out: Annotated[Path | None, typer.Option(help="Write the truths-side-by-side table to this file.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors.")] = False,
 ) -> None:
     """How much does the verdict depend on data revisions? Truths side by side, real-time vs revised data."""
+    from harness.backtest import run
     from harness.evaluation.sensitivity import sensitivity
+    from harness.report.terminal import sensitivity_lines
+    from harness.report.textout import emit
+    from harness.report.truths import truths_table
     from harness.spec import load_spec
 
+    f = _fmt(fmt, out)
+    ui = _display(quiet)
     s = load_spec(spec)
-    res = sensitivity(s, truths=truth or None, jobs=jobs, backend=backend.value, progress=True, data=not no_data,
-                      benchmark=benchmark)
-    dest = res.save(out or (s.out / "sensitivity"))
-    typer.echo(res.summary())
-    typer.echo(f"tables written to {dest}")
+    with ui.stage("real-time run (the backtest itself; cached tasks are not refit)", live=False):
+        res = run(s, jobs=jobs, backend=backend.value, progress=not quiet, log=ui.labelled("real-time run"))
+    from harness.ui import run_summary
+
+    ui.log(run_summary(res))
+    truths = tuple(truth or s.scoring.truths or ())
+    data = not no_data and s.mode == "real-time"
+    text = (f"scoring under {len(truths) if truths else 'the default'} truths"
+            + (", then the revised-data rerun (pseudo-real-time information sets)" if data else ""))
+    with ui.stage(text, live=False):
+        sens = sensitivity(s, truths=truths or None, run_dir=res.run_dir, jobs=jobs, backend=backend.value,
+                           progress=not quiet, data=data, benchmark=benchmark,
+                           log=ui.labelled("revised-data rerun"))
+    dest = sens.save(tables_dir or (s.out / "sensitivity"))
+    bench = benchmark or res.manifest.benchmark
+    if not quiet or out is not None:
+        emit([truths_table(sens, bench, variables=list(s.targets.variables))], f, out, extra_lines=sensitivity_lines(sens) if f in ("text", "md") else ())
+    ui.log(f"tables written to {dest}")
 
 
 @friendly
@@ -145,12 +230,15 @@ def report_cmd(
     truth: Annotated[str | None, typer.Option(help="Truth for the tables (default: the spec's).")] = None,
     benchmark: Annotated[str | None, typer.Option(help="The incumbent of the decision page (a model of the run; "
                                                   "default the spec's). No refit.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print nothing but errors.")] = False,
 ) -> None:
-    """Write the self-contained HTML review report (plus Markdown, LaTeX and CSV tables)."""
+    """Write the meeting pack (report.html) and its appendix (plus Markdown, LaTeX and CSV tables)."""
     from harness.report.make import make_report
 
-    paths = make_report(run_dir, out=out, since=since, truth=truth, echo=typer.echo, benchmark=benchmark)
-    typer.echo(f"report: {paths['html']}")
+    ui = _display(quiet)
+    paths = make_report(run_dir, out=out, since=since, truth=truth, benchmark=benchmark, display=ui)
+    ui.echo(f"report: {paths['html']}")
+    ui.echo(f"appendix: {paths['appendix']}")
 
 
 @friendly

@@ -11,6 +11,7 @@ import pandas as pd
 
 from harness.report.escape import slug
 from harness.report.grid import Cell, GridTable, RowGroup
+from harness.report.labels import h_label, h_range
 from harness.scores import resolve
 
 
@@ -25,14 +26,14 @@ def horizon_groups(horizons) -> list[list[int]]:
 
 
 def horizon_label(hs) -> str:
-    """``h = -1…0`` style label of a horizon block."""
-    hs = list(hs)
-    return f"h = {hs[0]}" if len(hs) == 1 else f"h = {hs[0]}\u2026{hs[-1]}"
+    """``h = -1…0`` style label of a horizon block (see :func:`harness.report.labels.h_range`)."""
+    return h_range(hs)
 
 
 def model_order(models, benchmark: str) -> list[str]:
     """The benchmark first, then the others in their given order."""
-    ms = [str(m) for m in pd.unique(pd.Series(list(models), dtype=object))]
+    seq = models.tolist() if hasattr(models, "tolist") else list(models)
+    ms = [str(m) for m in dict.fromkeys(seq)]
     return ([benchmark] if benchmark in ms else []) + [m for m in ms if m != benchmark]
 
 
@@ -71,7 +72,8 @@ def score_labels(scores) -> dict[str, str]:
 
 def _var_order(present, variables=None) -> list[str]:
     """``variables`` first (those present), then any other present variable in order of appearance."""
-    present = [str(v) for v in pd.unique(pd.Series(list(present), dtype=object))]
+    seq = present.tolist() if hasattr(present, "tolist") else list(present)
+    present = [str(v) for v in dict.fromkeys(seq)]
     wanted = [str(v) for v in (variables or [])]
     return [v for v in wanted if v in present] + [v for v in present if v not in wanted]
 
@@ -81,15 +83,26 @@ def _group_label(h: int, rows) -> str:
     vals = np.array([c.value for _, cs in rows for c in cs], dtype=np.float64)
     same = len(rows) > 1 and bool(len(vals)) and bool(np.all(np.isfinite(vals))) and bool(
         np.allclose(vals, 1.0, rtol=0, atol=1e-9))
-    return f"horizon {h}" + (" (every model scores the same here)" if same else "")
+    return h_label(h) + (" (every model scores the same here)" if same else "")
+
+
+_PV_CACHE: dict = {}
 
 
 def _pvalues(evaluation) -> dict:
+    """``{(model, variable, horizon, subperiod, score): p}`` of the tests against the benchmark (memoised)."""
     t = evaluation.tests
     if t is None or not len(t):
         return {}
-    keys = zip(t["model"], t["variable"], t["horizon"].astype(int), t["subperiod"], t["score"], strict=True)
-    return dict(zip(keys, t["pvalue"].to_numpy(dtype=float), strict=True))
+    if _PV_CACHE.get("tests") is t:
+        return _PV_CACHE["pv"]
+    # lists, not pandas columns: iterating Arrow-backed text columns element by element is slow
+    keys = zip(t["model"].tolist(), t["variable"].tolist(), t["horizon"].astype(int).tolist(),
+               t["subperiod"].tolist(), t["score"].tolist(), strict=True)
+    pv = dict(zip(keys, t["pvalue"].to_numpy(dtype=float).tolist(), strict=True))
+    _PV_CACHE.clear()
+    _PV_CACHE.update(tests=t, pv=pv)
+    return pv
 
 
 def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, prefix: str = "relative",
@@ -115,8 +128,8 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
     Returns
     -------
     list of GridTable
-        Cells carry the ratio, the number of forecasts ``n`` and the p-value of the HLN-corrected
-        Diebold–Mariano test against the benchmark of the same score (``se_mean`` for RMSE).
+        Cells carry the ratio, the number of forecasts ``n`` and the p-value of the registered
+        pairwise test (by default the fixed-m Diebold–Mariano test of Coroneo and Iacone 2020) against the benchmark of the same score (``se_mean`` for RMSE).
 
     References
     ----------
@@ -134,8 +147,8 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
     pv = _pvalues(evaluation)
     bench = evaluation.benchmark
     lookup = {(m, v, int(h), sp, s): (r, n) for m, v, h, sp, s, r, n in
-              zip(rf["model"], rf["variable"], rf["horizon"], rf["subperiod"], rf["score"], rf["ratio"], rf["n"],
-                  strict=True)}
+              zip(rf["model"].tolist(), rf["variable"].tolist(), rf["horizon"].tolist(), rf["subperiod"].tolist(),
+                  rf["score"].tolist(), rf["ratio"].tolist(), rf["n"].tolist(), strict=True)}
     columns = [(s, sp) for s in scores for sp in names]
     tables = []
     order = _var_order(rf["variable"], variables)
@@ -203,17 +216,20 @@ def coverage_tables(evaluation, levels=(50, 70, 90), variables=None) -> list[Gri
         sub = cal[cal["variable"].astype(str) == var]
         models = model_order(sub["model"], evaluation.benchmark)
         groups = []
+        look = {(str(m), int(h)): r for m, h, r in zip(sub["model"], sub["horizon"], sub.to_dict("records"),
+                                                          strict=True)}
         for h in sorted(int(x) for x in pd.unique(sub["horizon"])):
             rows = []
             for m in models:
-                r = sub[(sub["model"] == m) & (sub["horizon"] == h)]
+                r = look.get((m, h))
                 cells = []
                 for _, kind, c in cols:
-                    v = float(r[c].iloc[0]) if len(r) and c in r and pd.notna(r[c].iloc[0]) else np.nan
-                    n = int(r["n"].iloc[0]) if len(r) and kind == "rate" else None
+                    x = r.get(c) if r is not None else None
+                    v = float(x) if x is not None and pd.notna(x) else np.nan
+                    n = int(r["n"]) if r is not None and kind == "rate" else None
                     cells.append(Cell(v, n, v if kind != "rate" else None))
                 rows.append((m, cells))
-            groups.append(RowGroup(f"horizon {h}", {"variable": str(var), "horizon": h}, rows))
+            groups.append(RowGroup(h_label(h), {"variable": str(var), "horizon": h}, rows))
         tables.append(GridTable(
             name=slug("calibration", var), title=f"Interval coverage and PIT tests: {var}",
             columns=[(a, b) for a, b, _ in cols], column_levels=("test", "statistic"), row_name="model",
@@ -253,3 +269,145 @@ def sensitivity_ratio_tables(sensitivity, benchmark: str, variables=None) -> lis
             notes=["The same forecasts scored against different truths (full sample); below 1 = better "
                    "than the benchmark."]))
     return tables
+
+
+def key_tables(evaluation, *, score: str = "crps", subperiod: str = "full", variables=None) -> list[GridTable]:
+    """The pack's score table per target: rows models (incumbent first), columns every horizon.
+
+    Cells: the registry's relative number of ``score`` (CRPS ratio) on ``subperiod``, with the
+    p-value of the registered pairwise test against the incumbent and n printed in the cell.
+    """
+    col = resolve(score)
+    rf = ratio_frame(evaluation, [score], [subperiod])
+    if not len(rf) or col is None:
+        return []
+    pv = _pvalues(evaluation)
+    bench = evaluation.benchmark
+    tables = []
+    for var in _var_order(rf["variable"], variables):
+        sub = rf[rf["variable"].astype(str) == var]
+        models = model_order(sub["model"], bench)
+        hs = sorted(int(h) for h in pd.unique(sub["horizon"]))
+        look = {(m, int(h)): (r, n) for m, h, r, n in zip(sub["model"], sub["horizon"], sub["ratio"], sub["n"],
+                                                        strict=True)}
+        rows = []
+        for m in models:
+            cells = []
+            for h in hs:
+                r, n = look.get((m, h), (np.nan, None))
+                p = None if m == bench else pv.get((m, var, h, subperiod, score))
+                cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p))
+            rows.append((m, cells))
+        key = {"variable": str(var), "subperiod": subperiod, "score": score}
+        tables.append(GridTable(
+            name=slug("key", var) if subperiod == "full" else slug("key", var, subperiod),
+            title=f"{var}: {col.relative_label} to {bench}, every horizon "
+            f"({'full sample' if subperiod == 'full' else 'sub-period ' + subperiod})", columns=[(h,) for h in hs],
+            column_levels=("horizon",), row_name="model", groups=[RowGroup("", key, rows)],
+            column_labels={h: h_label(h) for h in hs}, digits=2,
+            notes=[f"Below 1 = lower {col.label} than {bench}. Marks: the pairwise test against {bench}, "
+                   "\u2193 significantly lower loss, \u2191 higher (* 10%, ** 5%, *** 1%); p and n in each "
+                   "cell; the lowest at each horizon is bold in the report, marked < in text."]))
+    return tables
+
+
+def mcs_table(evaluation, variables=None) -> GridTable | None:
+    """Model-confidence-set membership per variable and horizon, typed (``in_set`` bool, ``pvalue`` float).
+
+    References
+    ----------
+    Hansen, P. R., Lunde, A. and Nason, J. M. (2011). The model confidence set. Econometrica 79,
+    453–497.
+    """
+    m = evaluation.mcs
+    if m is None or not len(m):
+        return None
+    models = model_order(m["model"], evaluation.benchmark)
+    groups = []
+    for var in _var_order(m["variable"], variables):
+        sub = m[m["variable"].astype(str) == var]
+        hs = sorted(int(h) for h in pd.unique(m["horizon"]))
+        look = {(str(a), int(h)): (bool(i), float(p), int(n)) for a, h, i, p, n in
+                zip(sub["model"], sub["horizon"], sub["in_mcs"], sub["pvalue"], sub["n"], strict=True)}
+        rows = []
+        for mod in models:
+            cells = []
+            for h in hs:
+                f = look.get((mod, h))
+                cells.append(Cell(f[1], f[2], None, flag=f[0]) if f else Cell(np.nan, None, None, flag=None))
+            rows.append((mod, cells))
+        groups.append(RowGroup(str(var), {"variable": str(var)}, rows))
+    hs = sorted(int(h) for h in pd.unique(m["horizon"]))
+    a = float(m["alpha"].iloc[0]) if "alpha" in m and len(m) else 0.10
+    return GridTable(name="model_confidence_set", title=f"Model confidence set ({100 * (1 - a):g}%, CRPS, full "
+                     "sample): membership per horizon", columns=[(h,) for h in hs], column_levels=("horizon",),
+                     row_name="model", groups=groups, column_labels={h: h_label(h) for h in hs}, best=None,
+                     kind="set", group_name="variable",
+                     notes=["in: the model is in the set of best models at that level; p: its MCS p-value; "
+                            "n: forecasts behind the test (Hansen, Lunde and Nason 2011)."])
+
+
+def coverage_panel_table(evaluation, horizons, *, level: int = 90, variables=None) -> GridTable | None:
+    """The pack's coverage summary: the central ``level``% interval's hit rate per model, variable and horizon.
+
+    Cells: the share of outcomes inside the interval, the Kupiec test's p-value (stars: correct
+    coverage rejected) and n.
+
+    References
+    ----------
+    Kupiec, P. (1995). Techniques for verifying the accuracy of risk measurement models. Journal of
+    Derivatives 3, 73–84.
+    """
+    cal = evaluation.calibration
+    rate, pcol = f"cover_{level}_rate", f"cover_{level}_kupiec_p"
+    if cal is None or not len(cal) or rate not in cal:
+        return None
+    hs = [int(h) for h in horizons]
+    vs = _var_order(cal["variable"], variables)
+    models = model_order(cal["model"], evaluation.benchmark)
+    look = {(str(m), str(v), int(h)): r for m, v, h, r in
+            zip(cal["model"], cal["variable"], cal["horizon"], cal.to_dict("records"), strict=True)}
+    cols = [(v, h) for v in vs for h in hs if any((m, v, h) in look for m in models)]
+    rows = []
+    for m in models:
+        cells = []
+        for v, h in cols:
+            r = look.get((m, v, h))
+            if r is None:
+                cells.append(Cell())
+                continue
+            p = r.get(pcol)
+            cells.append(Cell(float(r[rate]), int(r["n"]), None if p is None or pd.isna(p) else float(p)))
+        rows.append((m, cells))
+    return GridTable(name="coverage_panel", title=f"Central {level}% interval: share of outcomes inside "
+                     f"(nominal {level / 100:.2f})", columns=cols, column_levels=("variable", "horizon"),
+                     row_name="model", groups=[RowGroup("", {}, rows)], best=None, kind="coverage", digits=2,
+                     column_labels={h: h_label(h) for h in hs},
+                     notes=["p: Kupiec (1995) test of correct unconditional coverage; stars mark a rejection "
+                            "(* 10%, ** 5%, *** 1%); n: forecasts."])
+
+
+def floor_counts(evaluation, floor: float | None = None) -> pd.DataFrame:
+    """How many log scores hit the density floor, per model × variable × horizon (typed).
+
+    A log score at ``-log(floor)`` means the outcome fell where the kernel density of the draws
+    is below the floor: the score is capped there (:mod:`harness.scores.density`), so a mean log
+    score resting on many floored forecasts understates how badly the model missed.
+    """
+    from harness.scores.registry import DEFAULT_DENSITY_FLOOR
+
+    f = evaluation.forecasts
+    if "log_score" not in f:
+        return pd.DataFrame(columns=["model", "variable", "horizon", "n", "at_floor", "share"])
+    cap = -np.log(floor if floor is not None else DEFAULT_DENSITY_FLOOR)
+    x = f["log_score"].to_numpy(dtype=float)
+    ok = np.isfinite(x)
+    g = pd.DataFrame({"model": f["model"].astype(str), "variable": f["variable"].astype(str),
+                      "horizon": f["horizon"].astype(int), "scored": ok,
+                      "at_floor": ok & (x >= cap * (1 - 1e-9))})
+    out = g.groupby(["model", "variable", "horizon"], sort=False).agg(n=("scored", "sum"),
+                                                                      at_floor=("at_floor", "sum")).reset_index()
+    out["n"] = out["n"].astype(int)
+    out["at_floor"] = out["at_floor"].astype(int)
+    out["share"] = np.where(out["n"] > 0, out["at_floor"] / out["n"].clip(lower=1), np.nan)
+    return out

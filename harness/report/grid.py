@@ -23,18 +23,37 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from harness.report.colours import ratio_colour, ratio_marker, significance, stars
-from harness.report.escape import escape_html, escape_latex, escape_markdown, fmt_number
+from harness.report.colours import (
+    MARK_BETTER,
+    MARK_WORSE,
+    PALETTE,
+    ratio_level,
+    significance,
+    stars,
+)
+from harness.report.escape import (
+    csv_safe,
+    escape_html,
+    escape_latex,
+    escape_markdown,
+    fmt_number,
+    fmt_p,
+)
 
 
 @dataclass
 class Cell:
-    """One numeric cell: value, forecasts behind it, test p-value, best-in-column flag."""
+    """One numeric cell: value, forecasts behind it, test p-value, best-in-column flag.
+
+    ``flag`` is the cell's yes/no fact where the table has one (``kind="set"``: in the model
+    confidence set).
+    """
 
     value: float = float("nan")
     n: int | None = None
     pvalue: float | None = None
     best: bool = False
+    flag: bool | None = None
 
 
 @dataclass
@@ -66,9 +85,12 @@ class GridTable:
     groups : list of RowGroup
     best : {"min", None}
         Which cell of each column (within a group) gets bold.
-    kind : {"ratio", "pvalue", "plain"}
-        ``ratio``: blue–orange background and direction markers; ``pvalue``: stars on the value
-        itself; ``plain``: numbers only.
+    kind : {"ratio", "pvalue", "coverage", "set", "plain"}
+        ``ratio``: blue–orange background and direction markers, the p-value of the test
+        against the benchmark printed in the cell; ``pvalue``: the value is a p-value, stars
+        mark rejections; ``coverage``: the value is a hit rate, ``pvalue`` its coverage test
+        (stars mark rejections); ``set``: ``flag`` in/out of a set, the value its p-value;
+        ``plain``: numbers only.
     notes : list of str
         Printed under the table (plain text, escaped on output).
     """
@@ -85,6 +107,10 @@ class GridTable:
     digits: int = 3
     notes: list[str] = field(default_factory=list)
     group_name: str | None = None
+    #: the typed frame CSV and Parquet hold, when the table has a better one than one row per cell
+    data: pd.DataFrame | None = None
+    #: text and Markdown headers show the last column level only (the HTML and LaTeX show all)
+    short_header: bool = False
 
     def __post_init__(self):
         self.mark_best()
@@ -111,14 +137,41 @@ class GridTable:
         """Significance mark of a cell: directional for ratio cells (↓ better, ↑ worse), stars otherwise."""
         if self.kind == "ratio":
             return significance(c.pvalue, (c.value - 1.0) if c.value == c.value else None)
+        if self.kind == "set":
+            return ""
         return stars(c.pvalue)
 
-    def label(self, level: int, value: str) -> str:
+    def _value_text(self, c: Cell) -> str:
+        """The cell's main text: the number, or ``in``/``out`` for set membership."""
+        if self.kind == "set":
+            return "\u2014" if c.flag is None else ("in" if c.flag else "out")
+        return fmt_number(c.value, self.digits)
+
+    def _detail(self, c: Cell, style: str = "html") -> str:
+        """The printed twin of the tooltip: ``p 0.004 · n 83`` (html), ``p=0.004, n=83`` (md, text)."""
+        p = c.value if self.kind == "set" else c.pvalue
+        parts = []
+        eq, sep = (" ", " \u00b7 ") if style == "html" else ("=", ", ")
+        if self.kind != "pvalue" and p is not None and np.isfinite(p):
+            parts.append(f"p{eq}{fmt_p(p)}")
+        if c.n is not None:
+            parts.append(f"n{eq}{c.n}")
+        return sep.join(parts)
+
+    def label(self, level: int, value) -> str:
         return str(self.column_labels.get(value, value))
+
+    def _flat_label(self, col) -> str:
+        """One line of header for a column (text and Markdown)."""
+        if self.short_header:
+            return self.label(len(col) - 1, col[-1])
+        return " ".join(self.label(i, v) for i, v in enumerate(col))
 
     # ----------------------------------------------------------------- renderings
     def to_frame(self) -> pd.DataFrame:
-        """The tidy form written to CSV: one row per cell, full precision."""
+        """The tidy form written to CSV: one row per cell, full precision (or ``data`` when given)."""
+        if self.data is not None:
+            return self.data
         recs = []
         for g in self.groups:
             for row, cells in g.rows:
@@ -128,6 +181,8 @@ class GridTable:
                     rec.update(dict(zip(self.column_levels, col, strict=True)))
                     rec.update(value=c.value, n=c.n, pvalue=c.pvalue, stars=stars(c.pvalue),
                                mark=self._mark(c), best=c.best)
+                    if self.kind == "set":
+                        rec.update(in_set=c.flag, pvalue=c.value)
                     recs.append(rec)
         return pd.DataFrame(recs)
 
@@ -162,13 +217,16 @@ class GridTable:
             parts.append("</tr>")
         parts.append("</thead>")
         ncol = len(self.columns) + 1
+        # colour levels of every cell at once (one vectorised call, not one per cell)
+        allc = [c for g in self.groups for _, cells in g.rows for c in cells]
+        levels = iter(ratio_level([c.value for c in allc]).tolist()) if allc and self.kind == "ratio" else None
         for g in self.groups:
             parts.append("<tbody>")
             if g.label:
                 parts.append(f'<tr class="group"><th colspan="{ncol}" scope="rowgroup">{e(g.label)}</th></tr>')
             for row, cells in g.rows:
                 parts.append(f'<tr><th class="rowh" scope="row">{e(row)}</th>')
-                parts.extend(self._html_cell(c) for c in cells)
+                parts.extend(self._html_cell(c, None if levels is None else next(levels)) for c in cells)
                 parts.append("</tr>")
             parts.append("</tbody>")
         parts.append("</table></div>")
@@ -176,46 +234,107 @@ class GridTable:
             parts.append('<p class="note">' + "<br>".join(e(n) for n in self.notes) + "</p>")
         return "\n".join(parts)
 
-    def _html_cell(self, c: Cell) -> str:
+    def _html_cell(self, c: Cell, level: int | None = None) -> str:
         e = escape_html
-        text = fmt_number(c.value, self.digits)
+        text = self._value_text(c)
         val = f"<strong>{text}</strong>" if c.best else text
         tip = []
         if c.n is not None:
             tip.append(f"n = {c.n} forecasts")
-        if c.pvalue is not None and np.isfinite(c.pvalue):
-            tip.append(f"p = {c.pvalue:.3f}")
+        p = c.value if self.kind == "set" else c.pvalue
+        if p is not None and np.isfinite(p):
+            tip.append(f"p = {fmt_p(p)}")
         style = ""
         mark = ""
         if self.kind == "ratio":
-            style = f' style="background:{ratio_colour(c.value)}"'
-            m = ratio_marker(c.value)
+            lv = int(ratio_level(c.value)) if level is None else level
+            style = f' style="background:{PALETTE[lv]}"'
+            m = MARK_BETTER if lv < 0 else MARK_WORSE if lv > 0 else ""
             mark = f'<span class="dir">{m}</span>' if m else ""
         sig = self._mark(c)
         sig_html = f'<span class="sig">{sig}</span>' if sig else ""
-        n_html = f'<span class="n">n={c.n}</span>' if c.n is not None else ""
+        detail = self._detail(c)
+        # p and n printed under the number (the tooltip repeats them for screen readers)
+        d_html = f'<br><span class="n">{e(detail)}</span>' if detail else ""
         title = f' title="{e("; ".join(tip))}"' if tip else ""
         cls = ' class="best"' if c.best else ""
-        return (f"<td{cls}{style}{title}>{mark}<span class=\"v\">{val}</span>{sig_html}"
-                f"{'<br>' + n_html if n_html else ''}</td>")
+        return f"<td{cls}{style}{title}>{mark}<span class=\"v\">{val}</span>{sig_html}{d_html}</td>"
+
+    def to_text(self, transpose: bool | None = None) -> str:
+        """Aligned plain text for a terminal or an e-mail: marks set apart from the numbers, p in the cell.
+
+        ``transpose`` (default: when the table has one group) puts the columns (e.g. horizons)
+        down the side and the rows (models) across, so that a table of many horizons fits a
+        terminal; n then gets its own column when every cell of a line has the same n.
+        """
+        transpose = (len(self.groups) == 1) if transpose is None else transpose
+        col_names = [self._flat_label(col) for col in self.columns]
+
+        def cell_text(c: Cell, with_n: bool) -> str:
+            t = self._value_text(c)
+            m = self._mark(c)
+            t = f"{t} {m}" if m else t
+            if c.best and t != "\u2014":
+                t += " <"
+            p = c.value if self.kind == "set" else c.pvalue
+            d = []
+            if self.kind != "pvalue" and p is not None and np.isfinite(p):
+                d.append(f"p {fmt_p(p)}")
+            if with_n and c.n is not None:
+                d.append(f"n {c.n}")
+            return f"{t} ({', '.join(d)})" if d else t
+
+        out = [self.title]
+        if transpose:
+            g = self.groups[0]
+            head = [self.group_name or self.column_levels[-1]] + [str(r) for r, _ in g.rows]
+            ns = [{c.n for _, cells in g.rows for c in [cells[j]] if c.n is not None} for j in range(len(self.columns))]
+            shared_n = all(len(n) <= 1 for n in ns)
+            if shared_n:
+                head.append("n")
+            rows = [head]
+            for j, name in enumerate(col_names):
+                line = [name] + [cell_text(cells[j], not shared_n) for _, cells in g.rows]
+                if shared_n:
+                    line.append(str(next(iter(ns[j]))) if ns[j] else "")
+                rows.append(line)
+            out += align_text(rows)
+        else:
+            head = [self.row_name] + col_names
+            rows: list[list[str]] = []
+            starts: dict[int, str] = {}
+            for g in self.groups:
+                if g.label and len(self.groups) > 1:
+                    starts[len(rows)] = g.label
+                for row, cells in g.rows:
+                    rows.append([str(row)] + [cell_text(c, True) for c in cells])
+            lines = align_text([head] + rows)
+            out.append(lines[0])
+            for i, ln in enumerate(lines[1:]):
+                if i in starts:
+                    out.append(starts[i])
+                out.append(ln)
+        out += list(self.notes)
+        return "\n".join(out) + "\n"
 
     def to_markdown(self) -> str:
-        """GitHub-flavoured Markdown: group key and row label as leading columns."""
+        """GitHub-flavoured Markdown: group key and row label as leading columns; p and n in the cell."""
         key_names = list(self.groups[0].key) if self.groups else []
         head = [escape_markdown(k) for k in key_names] + [escape_markdown(self.row_name)]
-        head += [escape_markdown(" ".join(self.label(i, v) for i, v in enumerate(col))) for col in self.columns]
+        head += [escape_markdown(self._flat_label(col)) for col in self.columns]
         lines = [f"**{escape_markdown(self.title)}**", "", "| " + " | ".join(head) + " |",
                  "|" + "|".join([":---"] * (len(key_names) + 1) + ["---:"] * len(self.columns)) + "|"]
         for g in self.groups:
             for row, cells in g.rows:
                 vals = [escape_markdown(g.key[k]) for k in key_names] + [escape_markdown(row)]
                 for c in cells:
-                    t = fmt_number(c.value, self.digits)
+                    t = self._value_text(c)
                     t = f"**{t}**" if c.best and t != "\u2014" else t
                     s = self._mark(c)
                     t += escape_markdown(s)
-                    if c.n is not None:
-                        t += f" (n={c.n})"
+                    d = escape_markdown(self._detail(c, style="md"))
+                    if d:
+                        t += f" ({d})"
                     vals.append(t)
                 lines.append("| " + " | ".join(vals) + " |")
         if self.notes:
@@ -243,7 +362,7 @@ class GridTable:
             for row, cells in g.rows:
                 vals = [escape_latex(row)]
                 for c in cells:
-                    t = fmt_number(c.value, self.digits)
+                    t = self._value_text(c)
                     if t == "\u2014":
                         vals.append("--")
                         continue
@@ -251,6 +370,9 @@ class GridTable:
                     s = self._mark(c)
                     if s:
                         t += f"$^{{{s}}}$"
+                    p = c.value if self.kind == "set" else c.pvalue
+                    if self.kind != "pvalue" and p is not None and np.isfinite(p):
+                        t += f" {{\\scriptsize[p {escape_latex(fmt_p(p))}]}}"
                     if c.n is not None:
                         t += f" {{\\scriptsize({c.n})}}"
                     vals.append(t)
@@ -277,13 +399,14 @@ class FrameTable:
     pvalue_columns: tuple[str, ...] = ()
 
     def _cell(self, col: str, x) -> str:
+        if x is None or x is pd.NA or x is pd.NaT or (isinstance(x, float | np.floating) and math.isnan(x)):
+            return "\u2014"
         if isinstance(x, bool | np.bool_):
             return "yes" if x else "no"
         if isinstance(x, float | np.floating):
-            t = fmt_number(x, self.digits)
-            return t + (stars(float(x)) if col in self.pvalue_columns else "")
-        if x is None or (isinstance(x, float) and math.isnan(x)) or x is pd.NaT:
-            return "\u2014"
+            if col in self.pvalue_columns:
+                return fmt_p(x) + stars(float(x))
+            return fmt_number(x, self.digits)
         if isinstance(x, pd.Timestamp | np.datetime64):
             return str(pd.Timestamp(x).date())
         return str(x)
@@ -294,7 +417,17 @@ class FrameTable:
                 for row in self.frame.itertuples(index=False, name=None)]
 
     def to_frame(self) -> pd.DataFrame:
+        """The frame itself, typed (booleans, floats, integers) as the builder made it."""
         return self.frame
+
+    def to_text(self) -> str:
+        """Aligned plain text: the title, the header and one line per row."""
+        cols = [str(c) for c in self.frame.columns]
+        right = [pd.api.types.is_numeric_dtype(self.frame[c]) and not pd.api.types.is_bool_dtype(self.frame[c])
+                 for c in self.frame.columns]
+        lines = ([self.title] + align_text([cols] + self._cells(), right=right) if len(self.frame)
+                 else [self.title, "(no rows)"])
+        return "\n".join(lines + list(self.notes)) + "\n"
 
     def to_html(self) -> str:
         e = escape_html
@@ -347,6 +480,19 @@ def _write_all(table, directory: Path) -> dict[str, Path]:
         p.write_text(text, encoding="utf-8")
         out[f"{table.name}.{ext}"] = p
     p = directory / f"{table.name}.csv"
-    table.to_frame().to_csv(p, index=False)
+    csv_safe(table.to_frame()).to_csv(p, index=False)
     out[f"{table.name}.csv"] = p
     return out
+
+
+def align_text(rows: list[list[str]], gap: int = 2, right=None) -> list[str]:
+    """Rows of text cells as aligned lines; ``right[j]`` right-aligns column j (default: all but the first)."""
+    if not rows:
+        return []
+    n = max(len(r) for r in rows)
+    rows = [list(r) + [""] * (n - len(r)) for r in rows]
+    widths = [max(len(r[j]) for r in rows) for j in range(n)]
+    right = [j > 0 for j in range(n)] if right is None else list(right) + [True] * (n - len(right))
+    pad = " " * gap
+    return [pad.join(c.rjust(widths[j]) if right[j] else c.ljust(widths[j]) for j, c in enumerate(r)).rstrip()
+            for r in rows]

@@ -1,16 +1,19 @@
-"""The review report: one self-contained HTML file plus every table as Markdown, LaTeX and CSV.
+"""The review report: the meeting pack, its appendix, and every table as Markdown, LaTeX and CSV.
 
-The HTML needs nothing but a browser: CSS inline, figures embedded as base64 PNG, no script, no
-network. It prints: each section starts a new page, colours are kept, every colour has a text
-twin (numbers, ▼/▲ direction markers, stars), and the number of forecasts behind each cell is
-printed under it.
+Both HTML files need nothing but a browser: CSS inline, figures embedded as base64 PNG, no
+script, no network; the pack links to the appendix beside it and back. ``report.html`` is the
+pack (decision page, the key score table per target, the fan chart, the calibration panel), at
+most four A4 pages when printed; ``appendix.html`` holds every other table and figure. Every
+colour has a text twin (numbers, ▼/▲ direction markers, stars), and the p-value and the number
+of forecasts behind each cell are printed in it.
 
 Layout of ``out_dir``::
 
-    report.html
-    report.md                      the same sections in Markdown (tables inline, figures linked)
-    tables/<name>.md|.tex|.csv     every table of the report
-    figures/<name>.png             every figure of the report (also embedded in the HTML)
+    report.html                    the meeting pack
+    appendix.html                  everything else
+    report.md                      every section in Markdown (tables inline, figures linked)
+    tables/<name>.md|.tex|.csv     every table of both pages
+    figures/<name>.png             every figure (also embedded in the HTML)
 """
 
 from __future__ import annotations
@@ -22,7 +25,8 @@ from pathlib import Path
 from string import Template
 
 from harness.report.escape import escape_html, escape_markdown, slug
-from harness.report.grid import FrameTable, GridTable
+from harness.report.inputs import Extras
+from harness.report.labels import CAUTION, CAUTION_SHORT
 from harness.report.sections import SECTIONS, ReportContext, _variables, manifest_value
 
 _TEMPLATE_DIR = Path(__file__).with_name("templates")
@@ -56,11 +60,14 @@ class ReportWriter:
         self.paths: dict[str, Path] = {}
         self.names = _Names()
         self.markdown: list[str] = []  # the current section's Markdown blocks
+        self.page = "pack"
+        self.tables_on: dict[str, list[str]] = {"pack": [], "appendix": []}
 
-    def table(self, t: GridTable | FrameTable) -> str:
+    def table(self, t) -> str:
         t.name = self.names(t.name)
         for k, p in t.write(self.tables_dir).items():
             self.paths[f"tables/{k}"] = p
+        self.tables_on[self.page].append(t.name)
         self.markdown.append(t.to_markdown())
         return t.to_html()
 
@@ -78,75 +85,111 @@ class ReportWriter:
                 f'alt="{escape_html(alt)}"><figcaption>{escape_html(caption)}</figcaption></figure>')
 
 
-
-
 def _section(sid: str, title: str, body: str) -> str:
     return f'<section id="{sid}">\n<h2>{escape_html(title)}</h2>\n{body}\n</section>'
 
 
+def _check_self_contained(page: str, name: str) -> None:
+    # Defence in depth: the page must not reach out to the network.
+    # Data text is escaped (no "<" survives), so only the page's own tags can match.
+    if re.search(r"""<[^>]*\s(?:src|href)\s*=\s*["']?\s*(?:https?:)?//""", page, flags=re.I):
+        raise RuntimeError(f"build_report: {name} references an external resource; expected a "
+                           "self-contained file (images as data: URIs)")
+
+
+def _facts(ev) -> str:
+    origins = manifest_value(ev, "origins") or []
+    span = f"{len(origins)} origins, {origins[0]} to {origins[-1]}" if origins else ""
+    return " · ".join(x for x in (f"incumbent {ev.benchmark}", f"truth '{ev.truth}'", "score CRPS", span) if x)
+
+
 def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_truths: dict | None = None,
-                 since=None, title: str | None = None, verdicts=None) -> dict[str, Path]:
-    """Write the review report for one evaluated run.
+                 since=None, title: str | None = None, verdicts=None, extras: Extras | None = None,
+                 diagnostics=None, progress=None) -> dict[str, Path]:
+    """Write the review report (pack and appendix) for one evaluated run.
 
     Parameters
     ----------
     evaluation : harness.evaluation.Evaluation
         The run scored under one truth.
     out_dir : path-like
-        Created if needed; receives ``report.html``, ``tables/`` and ``figures/``.
+        Created if needed; receives ``report.html``, ``appendix.html``, ``report.md``,
+        ``tables/`` and ``figures/``.
     sensitivity : harness.evaluation.sensitivity.Sensitivity, optional
         Truth and data sensitivity tables; without it the section says it was not run.
     ledger : harness.backtest.Ledger, optional
-        The run's draws, for the fan charts.
+        The run's draws, for the fan chart, past bands and nowcast paths.
     fan_truths : dict of str to Evaluation, optional
-        Outcomes drawn on the fan charts (e.g. ``{"first": ev_first, "latest": ev_latest}``);
-        default the evaluation's own truth.
+        Outcomes drawn on the charts; ``"latest"`` gives the outcomes published since the last
+        origin on the fan chart (default the evaluation's own truth).
     verdicts : harness.verdicts.Verdicts, optional
         The decision table (default: decided here from the evaluation, sensitivity and since).
     since : harness.evaluation.Evaluation, optional
-        The evaluation shown at the last review; adds the "What changed" section.
+        The evaluation shown at the last review; adds the change column and "What changed".
     title : str, optional
         Page title (default from the run's name).
+    extras : harness.report.inputs.Extras, optional
+        History at the latest origin, revision statistics, news, pool weights, diagnostics
+        (:func:`harness.report.inputs.gather_extras` reads them from a run).
+    diagnostics : DataFrame, optional
+        Model diagnostics ``model, origin, name, value`` (overrides ``extras.diagnostics``).
+    progress : object, optional
+        Told of each section written (``start()``, ``update(ok)``, ``close()``; e.g.
+        :class:`harness.ui.Progress`).
 
     Returns
     -------
     dict of str to Path
-        ``"report.html"`` and every ``"tables/<file>"`` and ``"figures/<file>"`` written.
+        ``"report.html"``, ``"appendix.html"``, ``"report.md"`` and every ``"tables/<file>"`` and
+        ``"figures/<file>"`` written.
     """
+    from harness.report.inputs import check_diagnostics
+
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     rep = ReportWriter(out)
     ev = evaluation
     variables = _variables(ev)
+    extras = extras if extras is not None else Extras()
+    if diagnostics is not None:
+        extras.diagnostics = check_diagnostics(diagnostics)
     title = title or f"Model review: {manifest_value(ev, 'name') or ev.run_dir}"
     if verdicts is None:
         from harness.verdicts import decide
 
         verdicts = decide(ev, sensitivity=sensitivity, since=since)
-    ctx = ReportContext(rep, ev, variables, ledger, fan_truths, sensitivity, since, verdicts)
-    built, md = [], [f"# {escape_markdown(title)}", ""]
-    for sec in SECTIONS:
-        if not sec.include(ctx):
-            continue
+    ctx = ReportContext(rep, ev, variables, ledger, fan_truths, sensitivity, since, verdicts, extras)
+    todo = [s for s in SECTIONS if s.include(ctx)]
+    if progress is not None:
+        progress.total = len(todo)
+        progress.start()
+    built = {"pack": [], "appendix": []}
+    md = [f"# {escape_markdown(title)}", "", escape_markdown(_facts(ev)), "", escape_markdown(CAUTION_SHORT), ""]
+    for sec in todo:
         rep.markdown = []
+        rep.page = sec.page
         body = sec.build(ctx)
-        built.append((sec.id, sec.title, body))
+        built[sec.page].append((sec.id, sec.title, body))
         md += [f"## {escape_markdown(sec.title)}", ""] + rep.markdown
-    nav = "".join(f'<li><a href="#{sid}">{escape_html(t)}</a></li>' for sid, t, _ in built)
+        if progress is not None:
+            progress.update(True)
+    if progress is not None:
+        progress.close()
     now = _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
-    page = _template("report.html").substitute(
-        title=escape_html(title),
-        css=(_TEMPLATE_DIR / "report.css").read_text(encoding="utf-8"),
-        subtitle=escape_html(f"Truth: {ev.truth}; benchmark: {ev.benchmark}; generated {now}."),
-        nav=nav,
-        sections="\n".join(_section(sid, t, body) for sid, t, body in built),
-    )
-    # Defence in depth: the page must not reach out to the network.
-    # Data text is escaped (no "<" survives), so only the page's own tags can match.
-    if re.search(r"""<[^>]*\s(?:src|href)\s*=\s*["']?\s*(?:https?:)?//""", page, flags=re.I):
-        raise RuntimeError("build_report: the page references an external resource; expected a "
-                           "self-contained file (images as data: URIs)")
-    p = out / "report.html"
-    p.write_text(page, encoding="utf-8")
+    css = (_TEMPLATE_DIR / "report.css").read_text(encoding="utf-8")
+    facts = escape_html(_facts(ev) + f" · generated {now}")
+    pages = {}
+    for page, fname, other, other_label in (("pack", "report.html", "appendix.html", "appendix"),
+                                            ("appendix", "appendix.html", "report.html", "the meeting pack")):
+        nav = "".join(f'<li><a href="#{sid}">{escape_html(t)}</a></li>' for sid, t, _ in built[page])
+        text = _template(f"{page}.html").substitute(
+            title=escape_html(title if page == "pack" else f"Appendix — {title}"),
+            css=css, facts=facts, caution=escape_html(CAUTION_SHORT), caution_full=escape_html(CAUTION),
+            other=other, other_label=escape_html(other_label), nav=nav,
+            sections="\n".join(_section(sid, t, body) for sid, t, body in built[page]))
+        _check_self_contained(text, fname)
+        p = out / fname
+        p.write_text(text, encoding="utf-8")
+        pages[fname] = p
     (out / "report.md").write_text("\n".join(md) + "\n", encoding="utf-8")
-    return {"report.html": p, "report.md": out / "report.md", **rep.paths}
+    return {**pages, "report.md": out / "report.md", **rep.paths}

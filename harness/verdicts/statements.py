@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from harness.verdicts.decide import BETTER, WORSE, Verdicts
+from harness.verdicts.decide import BETTER, WORSE, Verdicts, _fmt_p
 
 
 @dataclass(frozen=True)
@@ -38,7 +38,7 @@ def statements(v: Verdicts) -> list[Statement]:
         for word in (BETTER, WORSE):
             w = g[g["verdict"] == word]
             for m, gm in w.groupby("model", sort=False):
-                cells = ", ".join(f"{r.band} (ratio {r.ratio:.2f}, p = {r.pvalue:.3f})" for r in gm.itertuples())
+                cells = ", ".join(f"{r.band} (ratio {r.ratio:.2f}, {_fmt_p(r.pvalue)})" for r in gm.itertuples())
                 clauses.append(f"{m} is {word} than {v.benchmark} at {cells}")
                 rows += [(m, var, r.band) for r in gm.itertuples()]
         if not clauses:

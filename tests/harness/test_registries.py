@@ -41,7 +41,7 @@ def test_interval_score_reaches_every_output(evaluated):
     assert "interval score 80% ratio" in text
     csvs = [p for k, p in paths.items() if k.startswith("tables/interval") and k.endswith(".csv")]
     assert csvs and all(set(pd.read_csv(p)["score"]) <= {"interval_50", "interval_80"} for p in csvs)
-    html = paths["report.html"].read_text()
+    html = paths["report.html"].read_text() + paths["appendix.html"].read_text()
     assert "interval score 80% ratio" in html
 
 

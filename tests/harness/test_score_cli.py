@@ -16,12 +16,12 @@ def test_score_prints_tables_and_dates_turning_points(tmp_path, small_store):
     """Without a chronology file, recessions are dated by Harding–Pagan and the dates are printed."""
     spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
     run(spec, jobs=1, progress=False)
-    out_csv = tmp_path / "scores.csv"
-    res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "latest", "--out", str(out_csv)])
+    res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "latest", "--save-scores",
+                                   str(tmp_path / "scores")])
     assert res.exit_code == 0, res.output
     assert "Relative CRPS" in res.output and "truth 'latest'" in res.output
     assert "Harding" in res.output and "dated turning points" in res.output
-    scores = pd.read_csv(out_csv)
+    scores = pd.read_csv(tmp_path / "scores" / "forecast_scores.csv")
     assert {"crps", "pit", "truth", "subperiods"} <= set(scores.columns)
     # the CSV holds exactly the evaluation's per-forecast CRPS
     ev = evaluate(spec.out, "latest")

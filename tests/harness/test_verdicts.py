@@ -110,7 +110,8 @@ def test_statements_repeat_the_table(decided):
             row = v.row(m, var, band)
             if row["verdict"] in (BETTER, WORSE):
                 assert f"{m} is {row['verdict']} than {v.benchmark}" in s.text
-                assert f"{band} (ratio {row['ratio']:.2f}, p = {row['pvalue']:.3f})" in s.text
+                p = "p < 0.001" if row["pvalue"] < 0.001 else f"p = {row['pvalue']:.3f}"
+                assert f"{band} (ratio {row['ratio']:.2f}, {p})" in s.text
         for m in re.findall(r"(\w+) is (?:better|worse) than", s.text):
             assert m in set(v.table["model"])
 

@@ -69,3 +69,27 @@ class PoolSleeper(DiagModel):
         worker = multiprocessing.parent_process() is not None
         time.sleep(self.seconds if worker else self.inline)
         return super().forecast(info, targets, n_draws, rng)
+
+
+class StickyChainModel(DiagModel):
+    """Records the MCMC summary of a simulated chain: AR(1) with coefficient ``rho`` (sticky if near 1)."""
+
+    name = "sticky"
+
+    def __init__(self, scale: float = 1.0, rho: float = 0.0):
+        super().__init__(scale)
+        self.rho = rho
+
+    def params(self) -> dict:
+        return {"scale": self.scale, "rho": self.rho}
+
+    def forecast(self, info, targets, n_draws, rng):
+        from harness.models.mcmc import mcmc_diagnostics
+
+        out = super().forecast(info, targets, n_draws, rng)
+        e = rng.standard_normal((1000, 2))
+        x = np.zeros_like(e)
+        for t in range(1, len(e)):
+            x[t] = self.rho * x[t - 1] + e[t]
+        self.diagnostics_ = mcmc_diagnostics({"phi": x})
+        return out

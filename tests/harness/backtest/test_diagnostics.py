@@ -88,3 +88,18 @@ def test_bvar_records_its_hyperparameters_and_log_ml(tmp_path, small_store):
     tight = bv[bv["name"] == "tightness"]["value"]
     assert len(tight) == n_origins and np.allclose(tight.to_numpy(), 0.3)
     assert np.isfinite(bv[bv["name"] == "log_ml"]["value"]).all()
+
+
+def test_the_mcmc_check_warns_for_a_sticky_chain_only(tmp_path, small_store):
+    """The built-in check reads mcmc_diagnostics' verdict: an AR(1) chain with rho = 0.99 has an
+    ESS near N(1 - rho)/(1 + rho) ≈ 10 per 1,000 draws (Geyer 1992, the AR(1) integrated
+    autocorrelation time), far below 400 (Vehtari et al. 2021), so every origin is flagged; an
+    independent chain (rho = 0) is not."""
+    extra = ('[models.sticky]\ntype = "tests.harness.backtest.models:StickyChainModel"\nrho = 0.99\n'
+             '[models.iid]\ntype = "tests.harness.backtest.models:StickyChainModel"\nrho = 0.0\n')
+    res = run(_spec(tmp_path, small_store, extra), jobs=1, progress=False)
+    warnings = [w for w in res.manifest.diagnostic_warnings if "MCMC" in w]
+    assert len(warnings) == 1 and warnings[0].startswith("sticky:"), warnings
+    n = len(set(read_ledger(res.run_dir).diagnostics.query("model == 'sticky'")["origin"]))
+    assert f"at {n} of {n} origins" in warnings[0] and "threshold 400" in warnings[0]
+    assert "warning: sticky" in res.summary()

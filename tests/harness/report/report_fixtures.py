@@ -364,7 +364,8 @@ def _evaluation(draws: xr.DataArray, truth: dict, truth_name: str, periods_all: 
 
 
 def make_bundle(*, models=("rw", "ar", "bvar"), variables=("gdp", "cpi"), horizons=range(-1, 5),
-                n_origins: int = 40, n_draws: int = 200, seed: int = SEED, fail: bool = True) -> Bundle:
+                n_origins: int = 40, n_draws: int = 200, seed: int = SEED, fail: bool = True,
+                skill=None) -> Bundle:
     """Build a consistent fake Evaluation (first and latest truth), an earlier one, Sensitivity, Ledger.
 
     Parameters
@@ -380,6 +381,8 @@ def make_bundle(*, models=("rw", "ar", "bvar"), variables=("gdp", "cpi"), horizo
     seed : int
     fail : bool
         Make one task fail (model 2, origin 11): its draws are NaN and it is listed in failures.
+    skill : sequence of (bias, error scale, spread), optional
+        One per model (default :data:`SKILL`, cycled).
     """
     models, variables, horizons = list(models), list(variables), list(horizons)
     rng = np.random.default_rng(seed)
@@ -394,7 +397,7 @@ def make_bundle(*, models=("rw", "ar", "bvar"), variables=("gdp", "cpi"), horizo
         (o_per.asi8[:, None] + np.asarray(horizons)[None, :]).ravel(), freq="Q")).reshape(no, nh)
     y = np.stack([first[v][pos] for v in variables], axis=1)  # (origin, variable, horizon)
     hscale = 0.6 + 0.25 * (np.asarray(horizons) - min(horizons))
-    skill = np.array([SKILL[i % len(SKILL)] for i in range(nm)])
+    skill = np.array(list(skill) if skill is not None else [SKILL[i % len(SKILL)] for i in range(nm)])
     err = rng.normal(size=(nm, no, nv, nh)) * skill[:, 1, None, None, None] * hscale
     mean = y[None] + skill[:, 0, None, None, None] + err
     sd = skill[:, 2, None, None, None] * hscale * 1.1 * np.ones((1, 1, nv, 1))
@@ -480,3 +483,52 @@ def make_store(path: Path, n_batches: int = 4):
                            "value": 100.0 + np.arange(len(known)) + 0.1 * b})
         store.append(df, {"gdp": {"freq": "Q"}}, source=f"veldmark_gdp_batch{b + 1}.csv")
     return store
+
+
+def make_extras(bundle: Bundle, *, pools: bool = True, diagnostics: bool = True):
+    """The report's optional inputs for a bundle: history at the last origin, a news frame, pool weights, diagnostics.
+
+    The history is the first-truth outcome of each target up to the quarter before the last
+    origin's (what was published then); the news frame's contributions add up to its total; the
+    pool weights of each origin sum to one; the diagnostics are a hyperparameter path.
+    """
+    from harness.report.inputs import Extras
+
+    ev = bundle.evaluation
+    last = pd.Timestamp(bundle.ledger.draws["origin"].values[-1]).to_period("Q")
+    hist = {}
+    for v in pd.unique(ev.forecasts["variable"]):
+        f = ev.forecasts[ev.forecasts["variable"] == v][["target_period", "truth"]].dropna()
+        f = f.drop_duplicates("target_period")
+        f = f[[pd.Period(p, "Q") < last for p in f["target_period"]]].sort_values("target_period")
+        hist[str(v)] = pd.Series(f["truth"].to_numpy(dtype=float), index=f["target_period"].to_numpy())
+    rng = np.random.default_rng(SEED + 1)
+    contrib = rng.normal(0, 0.2, 4)
+    news = pd.DataFrame({"variable": ["gdp", "cpi", "gdp", "gdp"], "period": [str(last - 1)] * 2 + [str(last - 2)] * 2,
+                         "kind": ["news", "news", "revision", "reestimation"], "actual": [2.0, 1.5, 1.0, np.nan],
+                         "expected": [1.6, 1.7, 1.1, np.nan], "weight": [0.3, -0.2, 0.1, np.nan],
+                         "contribution": contrib})
+    total = float(contrib.sum())
+    news = pd.concat([news, pd.DataFrame({"variable": ["gdp", "gdp"], "period": [str(last)] * 2,
+                                          "kind": ["remainder", "total"], "actual": [np.nan, 2.0],
+                                          "expected": [np.nan, 2.0 - total], "weight": [np.nan, np.nan],
+                                          "contribution": [0.0, total]})], ignore_index=True)
+    origins = pd.DatetimeIndex(bundle.ledger.draws["origin"].values)
+    news.attrs.update(model="bvar", target="gdp", period=str(last), horizon=0, origin_old=str(origins[-2].date()),
+                      origin_new=str(origins[-1].date()), forecast_old=2.0 - total, forecast_new=2.0)
+    ex = Extras(history=hist, history_origin=str(origins[-1].date()), news=[news])
+    if pools:
+        models = [str(m) for m in bundle.ledger.draws["model"].values]
+        rows = []
+        for k, o in enumerate(origins):
+            w = rng.dirichlet(np.ones(len(models))) if k >= 8 else np.full(len(models), 1 / len(models))
+            for v in ("gdp", "cpi"):
+                for h in (0, 1):
+                    for m, x in zip(models, w, strict=True):
+                        rows.append(dict(pool="pool_opt", origin=o, variable=v, horizon=h, model=m, weight=float(x),
+                                         fallback=k < 8))
+        ex.pool_weights = pd.DataFrame(rows)
+    if diagnostics:
+        ex.diagnostics = pd.DataFrame({"model": "bvar", "origin": origins, "name": "tightness",
+                                       "value": 0.2 + 0.05 * np.sin(np.arange(len(origins)) / 4)})
+    return ex
