@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+from vintages import OptionError, UnknownNameError
+
+__all__ = ["HarnessError", "OptionError", "RunError", "SpecError", "TaskOutputError", "UnknownNameError"]
+
 
 class HarnessError(Exception):
     """Base class of every error raised by :mod:`harness`."""

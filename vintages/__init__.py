@@ -23,6 +23,8 @@ _PUBLIC: dict[str, str] = {
     # errors
     "VintageError": "vintages.errors",
     "InputError": "vintages.errors",
+    "OptionError": "vintages.errors",
+    "UnknownNameError": "vintages.errors",
     "LookAheadError": "vintages.errors",
     "ReleaseConflictError": "vintages.errors",
     "StoreCorruptError": "vintages.errors",

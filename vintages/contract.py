@@ -46,9 +46,11 @@ TRANSFORMS: Mapping[str, Any] = types.MappingProxyType(_REGISTRY)
 
 
 def choice(value, allowed, what: str) -> str:
-    """``value`` if it is one of ``allowed``; else a ValueError listing the allowed values."""
+    """``value`` if it is one of ``allowed``; else an OptionError (a ValueError) listing them."""
     if value not in allowed:
-        raise ValueError(f"unknown {what} {value!r}; expected one of {sorted(allowed)}")
+        from vintages.errors import OptionError
+
+        raise OptionError(f"unknown {what} {value!r}; expected one of {sorted(allowed)}")
     return value
 
 

@@ -40,7 +40,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from vintages.errors import StoreCorruptError
+from vintages.errors import StoreCorruptError, UnknownNameError
 from vintages.periods import parse_periods, period_end, period_index
 
 _NAT = np.datetime64("NaT", "D")
@@ -333,7 +333,7 @@ class Vintage:
                     return pd.Series([], index=fc.period_index[:0], dtype=np.float64, name="value")
                 lo, hi = np.flatnonzero(ok)[[0, -1]]
                 return pd.Series(x[lo:hi + 1], index=fc.period_index[lo:hi + 1], name="value")
-        raise KeyError(f"unknown variable {variable!r}; known: {sorted(self.variables)}")
+        raise UnknownNameError(f"unknown variable {variable!r}; known: {sorted(self.variables)}")
 
     @property
     def variables(self) -> list[str]:
@@ -397,7 +397,7 @@ class Cube:
         names = sorted(meta) if variables is None else sorted(variables)
         unknown = [v for v in names if v not in meta]
         if unknown:
-            raise KeyError(f"unknown variable(s) {unknown}; known: {sorted(meta)}")
+            raise UnknownNameError(f"unknown variable(s) {unknown}; known: {sorted(meta)}")
         log = log[log["variable"].isin(names)]
         codes, uniq = pd.factorize(log["variable"].to_numpy(dtype=object))
         ords = parse_periods(log["period"].to_numpy())[0] if len(log) else np.zeros(0, np.int64)
@@ -486,7 +486,7 @@ class Cube:
         try:
             return self.meta[variable]["freq"]
         except KeyError:
-            raise KeyError(f"unknown variable {variable!r}; known: {self.variables}") from None
+            raise UnknownNameError(f"unknown variable {variable!r}; known: {self.variables}") from None
 
     def part(self, variable: str) -> tuple[FreqIndex, int]:
         """The frequency index holding a variable, and the variable's row in it."""

@@ -51,6 +51,19 @@ def printable_path(path) -> str:
     return text
 
 
+class OptionError(VintageError, ValueError):
+    """An argument names something that does not exist or is malformed: a truth rule, a
+    transformation, a variable, a model, a score. A usage error (the command line's exit code 2),
+    unlike :class:`InputError`, which is about the data read."""
+
+
+class UnknownNameError(OptionError, KeyError):
+    """A name looked up is not there (a variable of the store, a model of the run); also a KeyError."""
+
+    def __str__(self) -> str:  # KeyError would quote the message
+        return str(self.args[0]) if self.args else ""
+
+
 class ReleaseConflictError(VintageError, ValueError):
     """A batch would change a value already published for the same (variable, period, release)."""
 

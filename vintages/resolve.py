@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from vintages.contract import SeriesSpec, choice
+from vintages.errors import UnknownNameError
 from vintages.periods import parse_periods
 from vintages.transforms import PARTIAL_POLICIES, check_conversion, get_transform
 
@@ -35,7 +36,7 @@ def resolve(cube: Cube, name: str, spec: Any, freq: str, partial: str,
             layout: str = "common") -> Series:
     """Validate one variable's spec against the cube, the panel frequency and layout."""
     if name not in cube.meta:
-        raise ValueError(f"unknown variable {name!r}; expected one of {cube.variables}")
+        raise UnknownNameError(f"unknown variable {name!r}; expected one of {cube.variables}")
     s = SeriesSpec.coerce(spec, name)
     get_transform(s.transform)
     native = cube.freq_of(name)

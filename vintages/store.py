@@ -88,6 +88,7 @@ from vintages.errors import (
     StoreCorruptError,
     StoreLockedError,
     StoreNotFoundError,
+    UnknownNameError,
     printable_path,
 )
 from vintages.periods import format_periods, parse_periods
@@ -850,7 +851,7 @@ class VintageStore:
         with self._lock():
             m = self.manifest()
             if name not in m["variables"]:
-                raise KeyError(f"unknown variable {name!r}; known: {sorted(m['variables'])}")
+                raise UnknownNameError(f"unknown variable {name!r}; known: {sorted(m['variables'])}")
             meta = m["variables"][name]
             now = _now()
             records = []

@@ -127,7 +127,9 @@ def get_transform(name: str) -> TransformFunc:
     try:
         return _REGISTRY[name]
     except (KeyError, TypeError):
-        raise ValueError(
+        from vintages.errors import OptionError
+
+        raise OptionError(
             f"unknown transform {name!r}; expected one of {transform_names()}"
         ) from None
 

@@ -16,6 +16,7 @@ import pandas as pd
 
 from vintages._types import FREQS
 from vintages.contract import TRUTH_FORMS, TruthRule, choice
+from vintages.errors import OptionError
 from vintages.periods import format_periods, period_end
 from vintages.resolve import Series, resolve_all, to_ordinals
 from vintages.rows import NAT, rows_for
@@ -57,11 +58,11 @@ def parse_truth(rule: str | TruthRule) -> TruthRule:
         try:
             d = np.datetime64(pd.Timestamp(m.group(1)).date(), "D")
         except ValueError:
-            raise ValueError(
+            raise OptionError(
                 f"truth rule {rule!r}: {m.group(1)!r} is not a calendar date"
             ) from None
         return TruthRule("asof", date=d)
-    raise ValueError(
+    raise OptionError(
         f"unknown truth rule {rule!r}; expected one of: {forms} "
         "(e.g. 'release:2', 'lag:365D', 'asof:2020-06-30')"
     )

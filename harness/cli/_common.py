@@ -1,4 +1,18 @@
-"""Shared CLI plumbing: turning library errors into one-line messages and exit codes."""
+"""Shared CLI plumbing: turning library errors into one-line messages and exit codes.
+
+Exit codes, the same for every command (README, "Exit codes"):
+
+=====  ===================================================================================
+0      success
+1      data or input error: a malformed or conflicting file, a missing store or run, a
+       corrupt file, a full disk or a permission problem (the message names the file)
+2      usage or spec error: an unknown option or option value (truth rule, score,
+       variable, model, transform), a spec refused by its checks
+3      another writer holds the lock of the store, run directory or cache: retry later
+4      the run finished, but some tasks failed (they are listed; ``--retry-failed`` reruns them)
+130    interrupted (SIGINT); 143 terminated (SIGTERM): finished work is kept
+=====  ===================================================================================
+"""
 
 from __future__ import annotations
 
@@ -11,6 +25,7 @@ import typer
 DATA_ERROR = 1
 USAGE_ERROR = 2
 LOCKED_ERROR = 3  # another writer holds a store's lock: retry later
+TASKS_FAILED = 4  # the run finished with failed tasks
 
 
 def fail(message: str, code: int = DATA_ERROR) -> None:
@@ -19,8 +34,21 @@ def fail(message: str, code: int = DATA_ERROR) -> None:
     raise typer.Exit(code=code)
 
 
+def exit_code(exc: BaseException) -> int:
+    """The documented exit code of an expected failure (see the module docstring)."""
+    from harness.backtest.errors import CacheBusyError, RunLockedError
+    from harness.errors import OptionError, SpecError
+    from vintages import StoreLockedError
+
+    if isinstance(exc, (StoreLockedError, RunLockedError, CacheBusyError)):
+        return LOCKED_ERROR
+    if isinstance(exc, (SpecError, OptionError)):
+        return USAGE_ERROR
+    return DATA_ERROR
+
+
 def friendly(func):
-    """Run a command; expected failures become one line on stderr and exit code 1."""
+    """Run a command; expected failures become one line on stderr and the documented exit code."""
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
@@ -35,12 +63,10 @@ def friendly(func):
         except (ValueError, KeyError, FileNotFoundError, FileExistsError, RuntimeError, OSError) as exc:
             if os.environ.get("HARNESS_DEBUG"):
                 raise  # HARNESS_DEBUG=1 shows the full traceback
-            from harness.errors import SpecError
-
             msg = str(exc.args[0]) if isinstance(exc, KeyError) and exc.args else str(exc)
             # one line: the first line of the message carries what failed and where
             typer.echo(f"error: {msg.splitlines()[0] if msg else type(exc).__name__}", err=True)
-            raise typer.Exit(code=USAGE_ERROR if isinstance(exc, SpecError) else DATA_ERROR) from None
+            raise typer.Exit(code=exit_code(exc)) from None
 
     return wrapper
 

@@ -8,7 +8,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import friendly
+from harness.cli._common import TASKS_FAILED, friendly
 
 
 class Backend(str, Enum):
@@ -79,7 +79,7 @@ def run_cmd(
               progress=not quiet, plan=plan)
     typer.echo(res.summary())
     if res.failed:
-        raise typer.Exit(code=1)
+        raise typer.Exit(code=TASKS_FAILED)
 
 
 @friendly

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from harness.backtest.ledger import Ledger, read_ledger
+from harness.errors import UnknownNameError
 
 
 @dataclass
@@ -155,7 +156,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     truth = str(parse_truth(truth or scoring.truth or "first"))
     benchmark = benchmark or man.benchmark
     if benchmark not in man.models:
-        raise ValueError(f"unknown benchmark {benchmark!r}; models of this run: {list(man.models)}")
+        raise UnknownNameError(f"unknown benchmark {benchmark!r}; models of this run: {list(man.models)}")
     key = None
     if cache:
         checksum = cube.checksum if cube is not None and getattr(cube, "checksum", None) else \

@@ -14,6 +14,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from harness.errors import UnknownNameError
+
 #: model types whose forecasts the decomposition covers (linear-Gaussian given parameters)
 NEWS_MODELS: tuple[str, ...] = ("dfm", "bvar")
 
@@ -64,10 +66,10 @@ def news_for_run(run_dir: str | Path, *, model: str | None = None, target: str |
                          f"{list(NEWS_MODELS)}); models: {list(man.models)}")
     model = model or covered[0]
     if model not in covered:
-        raise ValueError(f"model {model!r} has no news decomposition; expected one of {covered}")
+        raise UnknownNameError(f"model {model!r} has no news decomposition; expected one of {covered}")
     target = target or man.targets[0]
     if target not in man.targets:
-        raise ValueError(f"unknown target {target!r}; expected one of {list(man.targets)}")
+        raise UnknownNameError(f"unknown target {target!r}; expected one of {list(man.targets)}")
     run_origins = list(man.origins)
     if origins is None:
         if len(run_origins) < 2:

@@ -40,4 +40,4 @@ def test_news_command_prints_the_table_and_refuses_bad_models(news_run):
     res = runner.invoke(app, ["news", str(news_run.out)])
     assert res.exit_code == 0 and "total" in res.output and "reestimation" in res.output
     bad = runner.invoke(app, ["news", str(news_run.out), "--model", "ar"])
-    assert bad.exit_code == 1 and "no news decomposition" in bad.output
+    assert bad.exit_code == 2 and "no news decomposition" in bad.output

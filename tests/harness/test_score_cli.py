@@ -30,11 +30,11 @@ def test_score_prints_tables_and_dates_turning_points(tmp_path, small_store):
 
 
 def test_score_refuses_an_unknown_truth(tmp_path, small_store):
-    """A malformed truth rule is a one-line error with exit code 1, listing the valid forms."""
+    """A malformed truth rule is a one-line error with exit code 2 (usage), listing the valid forms."""
     spec = load_spec(write_spec(tmp_path, small_store, tmp_path / "run"))
     run(spec, jobs=1, progress=False)
     res = CliRunner().invoke(app, ["score", str(spec.out), "--truth", "final"])
-    assert res.exit_code == 1
+    assert res.exit_code == 2
     assert res.output.startswith("error:") and "first" in res.output and "latest" in res.output
 
 

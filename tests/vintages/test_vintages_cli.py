@@ -161,10 +161,10 @@ def test_describe_usage_errors(store, args, code, needle):
     assert snapshot(store) == before
 
 
-def test_describe_unknown_variable_is_a_data_error(store):
-    """describe of a variable the store lacks exits 1 listing the known ones."""
+def test_describe_unknown_variable_is_a_usage_error(store):
+    """describe of a variable the store lacks exits 2 (an unknown name) listing the known ones."""
     res = run("describe", store, "nope", "--units", "x")
-    assert res.exit_code == 1 and "unknown variable 'nope'; known: ['gdp']" in res.stderr
+    assert res.exit_code == 2 and "unknown variable 'nope'; known: ['gdp']" in res.stderr
 
 
 def test_verify_exit_codes(store):

@@ -128,9 +128,9 @@ def test_failing_user_model_is_isolated_and_retried(tmp_path, small_store):
     assert len(led.failures) == len(res.failed)
     retry = run(s, jobs=1, progress=False, retry_failed=True)
     assert retry.computed == len(res.failed)
-    # the CLI ends a run with failures with a non-zero exit code and a summary
+    # the CLI ends a run with failures with exit code 4 (README, "Exit codes") and a summary
     out = CliRunner().invoke(app, ["run", str(s.path), "-q"])
-    assert out.exit_code == 1
+    assert out.exit_code == 4
     assert "failed" in out.output and "--retry-failed" in out.output
 
 
