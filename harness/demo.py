@@ -192,7 +192,7 @@ def run_demo(out: Path, *, data_only: bool = False, small: bool = False, jobs: i
         f"({time.perf_counter() - t0:.1f}s)")
     paths = {"store": out / "store", "spec": spec_path, "chronology": out / "chronology.csv"}
     if data_only:
-        say("stopped after the data (--data-only); run the backtest with: harness run " + str(spec_path))
+        say("stopped after the data (--data-only); run the backtest with: vintage-harness run " + str(spec_path))
         return paths
     paths.update(run_pipeline(spec_path, out, jobs=jobs, echo=say, display=ui))
     paths.update(run_nowcast(out / "nowcast.toml", out, jobs=jobs, echo=say, display=ui))
@@ -232,7 +232,7 @@ def run_nowcast(spec_path: Path, out: Path, *, jobs: int | None = None, echo=pri
 def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=print, display=None) -> dict:
     """spec → run (with progress) → scores → sensitivity → report; return the paths written.
 
-    The terminal shows what ``harness score`` and ``harness sensitivity`` show (the decision view,
+    The terminal shows what ``vintage-harness score`` and ``vintage-harness sensitivity`` show (the decision view,
     one score table per target, the truths side by side); the report goes where ``harness
     report`` writes it, ``RUN/report``.
     """

@@ -22,7 +22,7 @@ PARTS = ("cli", "store", "infoset", "models", "scoring", "runner", "loop")
 
 
 def bench_cli() -> dict[str, float]:
-    """Start-up of ``harness --help`` (target <= 0.3 s) and of two commands' help, best of 5 each."""
+    """Start-up of ``vintage-harness --help`` (target <= 0.3 s) and of two commands' help, best of 5 each."""
     cmd = [sys.executable, "-c", "from harness.cli import main; main()"]
     out = {"cli_help_seconds": min(_time_cmd(cmd + ["--help"]) for _ in range(5)),
            "cli_help_target_seconds": 0.3}

@@ -7,7 +7,7 @@ variables, simulated with fixed seeds):
 
 * reading the log without checksums (the files decoded by name, as before this change),
   with checksums and nothing remembered (every file hashed: what each new process pays, e.g. a
-  ``harness vintages`` command), and with checksums remembered (a second read in one process);
+  ``vintage-harness vintages`` command), and with checksums remembered (a second read in one process);
 * the same for the cube build (the read plus the as-of cube) and for ``info``;
 * verifying the manifest (its checksum and the batch chain) for 20 and for 2000 batches;
 * SHA-256 throughput of this machine, which bounds the cold cost.

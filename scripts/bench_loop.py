@@ -4,7 +4,7 @@ Case: the demo store (invented Veldmark economy), real output ``gdp`` as annuali
 growth, an AR(2) with intercept, 78 quarterly origins (mid-quarter, 2007Q3-2026Q4), horizons
 0-8, CRPS against the latest vintage, at 2,000 and 10,000 draws.
 
-* harness: ``harness run SPEC -q`` then ``harness score RUN``, each a fresh subprocess (cold:
+* harness: ``vintage-harness run SPEC -q`` then ``vintage-harness score RUN``, each a fresh subprocess (cold:
   interpreter start, imports, an empty task cache), timed end to end. ``score`` computes every
   registered score and runs the comparison and calibration tests, more than the loop does.
 * loop: a fresh subprocess running the loop below: per origin, a pandas filter of the release

@@ -14,7 +14,7 @@ Figures (seconds):
   has; the first figure pays matplotlib's import), wall clock; ``report_step_cold_cpu_s`` its
   CPU time (less sensitive to other processes on a shared machine);
 * ``report_step_warm_s``: best of 3 more runs in the same interpreter;
-* ``report_cmd_step_cold_s``: the same after scoring as ``harness report`` runs it (reading the
+* ``report_cmd_step_cold_s``: the same after scoring as ``vintage-harness report`` runs it (reading the
   ledger again inside), in another fresh interpreter;
 * ``stage_<name>_s``: the cold run's stages (as the progress display shows them);
 * ``pack_pages``: pages of ``report.html`` printed by headless Chromium (when installed).
@@ -59,7 +59,7 @@ for k in range(4):
         v = decide(ev, sensitivity=sens)
         p = make_report(run, out=out, evaluation=ev, sensitivity=sens, display=Display(quiet=True), verdicts=v,
                         ledger=ledger)
-    else:  # 'harness report' after scoring: reads the ledger and decides inside
+    else:  # 'vintage-harness report' after scoring: reads the ledger and decides inside
         p = make_report(run, out=out, evaluation=ev, sensitivity=sens, display=Display(quiet=True))
     wall, cpu = time.perf_counter() - t, time.process_time() - c
     if k == 0:

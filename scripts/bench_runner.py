@@ -7,12 +7,12 @@ read the ratios). Figures (targets in ``*_target`` lines):
   in-process ``run()``; 1 and 2 loky workers (with the inline pilot, and with the pool from the
   start), and a 2-worker dask ``LocalCluster`` (``runner_dask_over_loky``).
 * ``rerun_*``: after the cold run, a rerun with nothing new (in process, and as a fresh
-  ``harness run`` subprocess, start-up included), a rerun into a new run directory (``--out``),
+  ``vintage-harness run`` subprocess, start-up included), a rerun into a new run directory (``--out``),
   and a rerun after one new release dated before the last origin; each as a share of the cold
   2-worker run, with the number of tasks refit.
 * ``size_*``: bytes of the run directory's files, of the ledger, and of the same draws written
   the previous way (plain float32 in draw order, run-manifest/2), and of the task cache.
-* ``score_*``: ``harness score RUN`` on the demo run as a subprocess (best of 3), and where its
+* ``score_*``: ``vintage-harness score RUN`` on the demo run as a subprocess (best of 3), and where its
   time goes (measured in one child: imports by package, reading the ledger, scoring, tests,
   printing).
 
@@ -141,7 +141,7 @@ def run(quick: bool = False) -> dict[str, float]:
         ref = cold["2jobs"]
         main = spec("cold-2jobs")
 
-        # a rerun with nothing new: in process, and as a fresh 'harness run' (start-up included)
+        # a rerun with nothing new: in process, and as a fresh 'vintage-harness run' (start-up included)
         t0 = time.perf_counter()
         res = run_backtest(main, jobs=2, **quiet)
         out["rerun_nothing_new_seconds"] = time.perf_counter() - t0
@@ -186,7 +186,7 @@ def run(quick: bool = False) -> dict[str, float]:
         out["size_ledger_bytes_per_draw"] = led_file.stat().st_size / (res.manifest.ledger_rows * base.draws)
         out["size_task_cache_mb"] = _bytes(main.cache_dir) / 1e6
 
-        # harness score on this run: the whole command, and where its time goes
+        # vintage-harness score on this run: the whole command, and where its time goes
         env = _env(HARNESS_CACHE=str(main.cache_dir))
         out["score_cli_seconds"] = _wall(cli + ["score", str(main.out)], env, repeat=3)
         out["score_cli_target_seconds"] = 1.5
@@ -201,7 +201,7 @@ def run(quick: bool = False) -> dict[str, float]:
 
 
 def demo_sizes() -> dict[str, float]:
-    """``harness demo`` end to end in a subprocess: its run directories' and cache's sizes (target <= 60 MB)."""
+    """``vintage-harness demo`` end to end in a subprocess: its run directories' and cache's sizes (target <= 60 MB)."""
     tmp = Path(tempfile.mkdtemp(prefix="bench-demo-"))
     try:
         t0 = time.perf_counter()

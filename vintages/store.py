@@ -475,7 +475,7 @@ def _check_labels(root: Path, m: dict, table: pa.Table) -> None:
         what = f"variable {var[i]!r} is not in the manifest" if want[i] == "" else (
             f"period {lab[i]!r} of {var[i]!r} is not a valid {'quarterly' if want[i] == 'Q' else 'monthly'} label")
         raise StoreCorruptError(f"{printable_path(root / f)}: {what} ({len(bad)} such label(s) in the store; an "
-                                "earlier version could store misread labels); run 'harness vintages verify'")
+                                "earlier version could store misread labels); run 'vintage-harness vintages verify'")
 
 
 def _lookup(batch: pd.DataFrame, old: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
@@ -561,7 +561,7 @@ class VintageStore:
         self.path = Path(path)
         if not (self.path / "manifest.json").is_file():
             raise StoreNotFoundError(f"{printable_path(self.path)}: not a vintage store (no manifest.json); "
-                                     f"create one with 'harness vintages init {printable_path(self.path)}'")
+                                     f"create one with 'vintage-harness vintages init {printable_path(self.path)}'")
 
     def __repr__(self) -> str:
         return f"VintageStore({str(self.path)!r})"
@@ -623,7 +623,7 @@ class VintageStore:
         m = self._manifest_unchecked()
         problems = manifest_problems(m)
         if problems:
-            more = f" (and {len(problems) - 1} more; see 'harness vintages verify')" if len(problems) > 1 else ""
+            more = f" (and {len(problems) - 1} more; see 'vintage-harness vintages verify')" if len(problems) > 1 else ""
             raise StoreCorruptError(f"{printable_path(self.path / 'manifest.json')}: {problems[0]}{more}")
         return m
 
@@ -822,7 +822,7 @@ class VintageStore:
         units, description : str, optional
         transform_hint : str, optional
             The transformation that makes the series stationary (e.g. ``dlog_ann``), used as the
-            default of ``harness vintages revisions``; ``""`` removes it. One of
+            default of ``vintage-harness vintages revisions``; ``""`` removes it. One of
             :func:`vintages.transforms.transform_names`.
         reason : str, optional
             Why, kept in the audit records.
@@ -1029,7 +1029,7 @@ class VintageStore:
                     known[name] = dict(info, _why=f"as in {src}, earlier in this ingest")
                     if not info["units"]:
                         warnings.append(f"new variable {name!r} has no units; record them with describe "
-                                        f"(harness vintages describe {printable_path(self.path)} {name} --units ...)")
+                                        f"(vintage-harness vintages describe {printable_path(self.path)} {name} --units ...)")
                 plans.append((batch, src, new_vars, tuple(warnings)))
 
             # Values in force: the store's, for the variables these batches touch, then each
@@ -1142,7 +1142,7 @@ def _check_metadata(meta: dict, known: dict, src: str) -> None:
                 raise MetadataConflictError(
                     f"{src}: variable {name!r} has {fld} {old!r} ({where}), this ingest gives {str(new)!r}; "
                     f"metadata change only through describe, which keeps an audit record "
-                    f"(harness vintages describe STORE {name} --{fld} ...); nothing was written")
+                    f"(vintage-harness vintages describe STORE {name} --{fld} ...); nothing was written")
 
 
 def clear_verified_cache() -> None:

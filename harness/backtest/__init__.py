@@ -1,7 +1,7 @@
 """The backtest: plan (origins, information sets, task keys), dispatch, worker, ledger, run manifest.
 
 Names load on first use, so importing one module of this package (the ledger reader for
-scoring, the cache for ``harness cache``) does not import the others (models, joblib).
+scoring, the cache for ``vintage-harness cache``) does not import the others (models, joblib).
 """
 
 from __future__ import annotations

@@ -6,7 +6,7 @@ from harness.errors import RunError
 
 
 class CacheBusyError(RunError):
-    """The task cache (or a run directory) is in use by a run; ``harness cache clean`` waits for none."""
+    """The task cache (or a run directory) is in use by a run; ``vintage-harness cache clean`` waits for none."""
 
 
 class RunLockedError(RunError):

@@ -20,7 +20,7 @@ draws in the order the model made them (:meth:`Ledger.joint_draws`).
 
 The files are content-addressed and written before the manifest that names them: a run killed
 between the two leaves the previous manifest pointing at the previous (still present) files;
-the new, unnamed files are removed by the next run or by ``harness cache clean``.
+the new, unnamed files are removed by the next run or by ``vintage-harness cache clean``.
 """
 
 from __future__ import annotations
@@ -439,7 +439,7 @@ def joint_draws_from_cache(cache: TaskCache, tasks, models, origins, variables, 
         path = cache.task_path(t["key"])
         if not path.is_file():
             raise RunError(f"{path}: the joint draws of {t['model']} at {t['origin']} are no longer in the task "
-                           f"cache; rerun 'harness run {spec}' (it recomputes the same draws)")
+                           f"cache; rerun 'vintage-harness run {spec}' (it recomputes the same draws)")
         tab, _ = cache.read_task(t["key"])
         oi = int(np.searchsorted(origins_d, np.datetime64(t["origin"], "D")))
         vi = vidx.get_indexer(tab.column("variable").to_pylist())
@@ -468,16 +468,16 @@ def read_ledger(run_dir: str | Path) -> Ledger:
     manifest = RunManifest.read(run_dir)
     lpath, mpath = run_dir / manifest.ledger, run_dir / "run.json"
     if not lpath.is_file():
-        raise RunError(f"{lpath}: the ledger named by {mpath} is missing; rerun 'harness run' (the task "
+        raise RunError(f"{lpath}: the ledger named by {mpath} is missing; rerun 'vintage-harness run' (the task "
                        "cache is reused)")
     try:
         t = pq.read_table(lpath)
     except (OSError, pa.ArrowInvalid) as exc:
-        raise RunError(f"{lpath}: unreadable ledger ({str(exc).splitlines()[0]}); rerun 'harness run' "
+        raise RunError(f"{lpath}: unreadable ledger ({str(exc).splitlines()[0]}); rerun 'vintage-harness run' "
                        "(the task cache is reused)") from None
     if t.num_rows != manifest.ledger_rows:
         raise RunError(f"{lpath} holds {t.num_rows} rows but {mpath} says {manifest.ledger_rows}: the "
-                       "ledger and its manifest disagree; rerun 'harness run'")
+                       "ledger and its manifest disagree; rerun 'vintage-harness run'")
     layout = manifest.draws_layout
     models = list(manifest.models)
     origins = np.array(manifest.origins, dtype="datetime64[D]")
@@ -500,7 +500,7 @@ def read_ledger(run_dir: str | Path) -> Ledger:
             r = df[bad].iloc[0]
             raise RunError(f"{lpath} holds a forecast of model {r['model']!r} at origin {r['origin']} "
                            f"({r['variable']}, h={r['horizon']}) that {mpath} does not list (models "
-                           f"{models}): the ledger and its manifest disagree; rerun 'harness run'")
+                           f"{models}): the ledger and its manifest disagree; rerun 'vintage-harness run'")
         col = t.schema.field("draws").type
         if col.list_size != n_draws:
             raise RunError(f"{lpath} holds {col.list_size} draws per forecast "
@@ -508,7 +508,7 @@ def read_ledger(run_dir: str | Path) -> Ledger:
         want = pa.int32() if layout == "sorted" else pa.float32()
         if col.value_type != want:
             raise RunError(f"{lpath} stores draws as {col.value_type} but {mpath} says layout {layout!r} "
-                           f"({want}): the ledger and its manifest disagree; rerun 'harness run'")
+                           f"({want}): the ledger and its manifest disagree; rerun 'vintage-harness run'")
         out[mi, oi, vi, hi] = codec.decode(t.column("draws"), layout)
     draws = xr.DataArray(out, dims=("model", "origin", "variable", "horizon", "draw"),
                          coords={"model": models, "origin": origins.astype("datetime64[ns]"), "variable": variables,
@@ -524,6 +524,6 @@ def read_ledger(run_dir: str | Path) -> Ledger:
     if dname:
         dpath = run_dir / dname
         if not dpath.is_file():
-            raise RunError(f"{dpath}: the diagnostics named by {mpath} are missing; rerun 'harness run'")
+            raise RunError(f"{dpath}: the diagnostics named by {mpath} are missing; rerun 'vintage-harness run'")
         diag = pd.read_parquet(dpath)
     return Ledger(draws, target_period, prov, fails, manifest, run_dir, diag)

@@ -82,7 +82,7 @@ class RunManifest:
     diagnostic_warnings : tuple of str
         Messages of the registered diagnostic checks (:mod:`harness.backtest.diagnostics`).
     cache : str
-        The task cache the run used (joint draws, resumption; ``harness cache clean``).
+        The task cache the run used (joint draws, resumption; ``vintage-harness cache clean``).
     """
 
     name: str
@@ -155,7 +155,7 @@ class RunManifest:
         if fmt not in READABLE:
             got = "no format field (written by an older version)" if fmt is None else f"format {fmt!r}"
             raise RunError(f"{source}: {got}; this version reads {', '.join(READABLE)}. Rerun the "
-                           "spec with 'harness run' to rebuild the run directory (the task cache is "
+                           "spec with 'vintage-harness run' to rebuild the run directory (the task cache is "
                            "reused)")
         names = {f.name for f in fields(cls)}
         optional = ("diagnostics", "format") + _ADDED_IN_3
@@ -188,7 +188,7 @@ class RunManifest:
         """
         p = Path(run_dir) / "run.json"
         if not p.is_file():
-            raise RunError(f"{Path(run_dir)}: not a run directory (no run.json); run 'harness run SPEC' "
+            raise RunError(f"{Path(run_dir)}: not a run directory (no run.json); run 'vintage-harness run SPEC' "
                            "first")
         try:
             d = json.loads(p.read_text(encoding="utf-8"))

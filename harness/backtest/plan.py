@@ -71,7 +71,7 @@ class Plan:
         return (self.native_targets if task.layout == "native" else self.targets)[task.index]
 
     def explain(self) -> str:
-        """A human-readable description of the resolved plan (``harness run --explain``)."""
+        """A human-readable description of the resolved plan (``vintage-harness run --explain``)."""
         s = self.spec
         cache = TaskCache(s.cache_dir)
         done = sum(cache.has(t.key) for t in self.tasks)

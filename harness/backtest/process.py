@@ -170,7 +170,7 @@ def watch_parent(driver_pid: int) -> bool:
     tasks inline, nor dask workers, whose nanny does this). A daemon thread looks at the parent
     pid every :data:`WATCH_INTERVAL` seconds; when the driver has died the worker is re-parented
     and leaves with ``os._exit`` (its task files are written atomically, so nothing half-written
-    is left; a temporary file at most, which ``harness cache clean`` removes).
+    is left; a temporary file at most, which ``vintage-harness cache clean`` removes).
     """
     global _WATCHING
     if _WATCHING is not None or os.getpid() == driver_pid or os.getppid() != driver_pid:

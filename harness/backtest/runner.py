@@ -18,7 +18,7 @@ Cache: a task's key hashes the model's type, parameters, declared version and so
 information set's data, the targets, the number of draws and the seed key. A completed key is
 never recomputed; a failed key is rerun only with ``retry_failed``. The cache is shared by every
 run directory of the store (:mod:`harness.backtest.cache`): each run registers the keys it uses
-before looking them up and holds the cache's shared lock while it runs, so ``harness cache
+before looking them up and holds the cache's shared lock while it runs, so ``vintage-harness cache
 clean`` never removes what a run needs.
 
 Crash safety: the run holds ``RUN/.lock`` (a second run on the same directory fails at once);
@@ -155,7 +155,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
     progress : bool
         Show a progress bar (terminal) or log lines (elsewhere).
     plan : Plan, optional
-        A plan already made for ``spec`` (``harness run`` makes it first for ``--explain``).
+        A plan already made for ``spec`` (``vintage-harness run`` makes it first for ``--explain``).
     draws_layout : {"sorted", "joint"}
         How the ledger stores draws (:mod:`harness.backtest.codec`): ``sorted`` (default,
         compact) or in draw order.
@@ -185,7 +185,7 @@ def run(spec: Spec, *, jobs: int | None = None, backend: str = "loky", scheduler
     with run_dir_lock(out), cache.using(), interrupt_signals():
         given_plan = plan is not None
         plan = plan or make_plan(spec)
-        # registered before any lookup: a concurrent 'harness cache clean' keeps all of it
+        # registered before any lookup: a concurrent 'vintage-harness cache clean' keeps all of it
         cache.register(out, keys=[t.key for t in plan.tasks], **plan.cache_entries)
         _checkpoint("registered")
         return _run_locked(spec, plan, cache, given_plan=given_plan, t_start=t_start, jobs=jobs,

@@ -13,7 +13,7 @@ import typer
 from harness.cli import cache_cmd, ledger_cmd, vintages_cmd, workflow_cmd
 
 app = typer.Typer(
-    name="harness",
+    name="vintage-harness",
     help="Real-time vintage backtesting: keep every release, rebuild what was known at each "
     "forecast origin, refit models in parallel, score, and report for the model review.",
     no_args_is_help=True,
@@ -31,11 +31,11 @@ workflow_cmd.register(app)
 
 
 def main() -> None:
-    """Entry point of the ``harness`` console script."""
+    """Entry point of the ``vintage-harness`` console script."""
     from harness.backtest.process import defer_dask_probe_on_import
 
     defer_dask_probe_on_import()  # this process builds no dask array: skip xarray's dask import
-    app()
+    app(prog_name="vintage-harness")
 
 
 if __name__ == "__main__":

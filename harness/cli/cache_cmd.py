@@ -1,4 +1,4 @@
-"""``harness cache …``: where the task cache is, what it holds, and cleaning it.
+"""``vintage-harness cache …``: where the task cache is, what it holds, and cleaning it.
 
 Exit codes: 0 success; 1 a data or input error; 2 a usage error; 3 a run is using the cache
 (``clean`` never runs beside one): retry when it has finished.
@@ -62,7 +62,7 @@ def info_cmd(cache: CacheOpt = None, spec: SpecOpt = None, store: StoreOpt = Non
     for r in i["runs"]:
         typer.echo(f"  used by {r}")
     for r in i["gone"]:
-        typer.echo(f"  registered but gone: {r} ('harness cache clean' drops it)")
+        typer.echo(f"  registered but gone: {r} ('vintage-harness cache clean' drops it)")
 
 
 @app.command("clean")

@@ -1,4 +1,4 @@
-"""``harness ledger …``: a run's stored forecasts as tidy files for other tools.
+"""``vintage-harness ledger …``: a run's stored forecasts as tidy files for other tools.
 
 Exit codes: 0 success; 1 a data or input error (no run, a damaged ledger); 2 a usage error
 (bad quantile levels, an output suffix other than ``.parquet`` or ``.csv``).

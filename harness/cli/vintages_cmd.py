@@ -1,4 +1,4 @@
-"""``harness vintages …``: create a store, ingest release files, inspect what was known when.
+"""``vintage-harness vintages …``: create a store, ingest release files, inspect what was known when.
 
 Exit codes of these commands: 0 success; 1 data or input error (a bad file, a conflict, a
 corrupt store, an unsound ``verify``); 2 usage error (bad option or argument); 3 another
@@ -87,7 +87,7 @@ def _notes(st, m) -> None:
     if orphans:
         shown = ", ".join(orphans[:5]) + (f", … ({len(orphans)} in all)" if len(orphans) > 5 else "")
         typer.echo(f"note: {len(orphans)} file(s) not listed by the manifest (left by interrupted writes or "
-                   f"put there by hand): {shown}; see 'harness vintages cleanup {st.path}'", err=True)
+                   f"put there by hand): {shown}; see 'vintage-harness vintages cleanup {st.path}'", err=True)
 
 
 @app.command("init")

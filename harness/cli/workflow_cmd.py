@@ -1,4 +1,4 @@
-"""``harness run | score | report | sensitivity | demo``: the backtest workflow commands."""
+"""``vintage-harness run | score | report | sensitivity | demo``: the backtest workflow commands."""
 
 from __future__ import annotations
 
@@ -28,7 +28,7 @@ def _score_choices() -> str:
 _SCORE_CHOICES = _score_choices()
 
 SpecArg = Annotated[Path, typer.Argument(help="The backtest spec (TOML).")]
-RunArg = Annotated[Path, typer.Argument(help="A run directory written by 'harness run'.")]
+RunArg = Annotated[Path, typer.Argument(help="A run directory written by 'vintage-harness run'.")]
 
 
 _BACKEND_HELP = ("joblib backend: loky (local processes, the default), dask (a dask.distributed cluster), "
@@ -183,7 +183,7 @@ def sensitivity_cmd(
     jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1, help="Parallel workers.")] = None,
     backend: Annotated[Backend, typer.Option(metavar="BACKEND", show_choices=False, help=_BACKEND_HELP)] = Backend.loky,
     tables_dir: Annotated[Path | None, typer.Option("--tables-dir", help="Directory for the CSV tables (default: "
-                                                    "RUN/sensitivity, where 'harness report' reads them).")] = None,
+                                                    "RUN/sensitivity, where 'vintage-harness report' reads them).")] = None,
     no_data: Annotated[bool, typer.Option("--no-data-check", help="Skip the pseudo-real-time rerun.")] = False,
     benchmark: Annotated[str | None, typer.Option(help="The incumbent every model is set against (default the "
                                                   "spec's). No refit.")] = None,

@@ -3,7 +3,7 @@
 The model, its state-space form and the algorithms are described in
 :mod:`harness.models.dfm_ssm` (model and references), :mod:`harness.models.dfm_fast` (compiled
 filter and smoother) and :mod:`harness.models.dfm_em` (EM estimation); this module holds the
-model class that the harness runs.
+model class that the vintage-harness runs.
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Glue for ``harness report``: evaluate a run, gather sensitivity and history, write the report, show progress."""
+"""Glue for ``vintage-harness report``: evaluate a run, gather sensitivity and history, write the report, show progress."""
 
 from __future__ import annotations
 

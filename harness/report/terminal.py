@@ -1,4 +1,4 @@
-"""Tables for the terminal (``harness score``, ``harness sensitivity``), from the same builders as the report.
+"""Tables for the terminal (``vintage-harness score``, ``vintage-harness sensitivity``), from the same builders as the report.
 
 The numbers, labels and marks are those of the report's tables (:mod:`harness.report.builders`,
 :mod:`harness.report.decision`, :mod:`harness.report.truths`): aligned text with the marks set

@@ -3,7 +3,7 @@
 A spec names the store, the variables and how each is transformed, the targets and horizons,
 the origins schedule, the models, the number of draws and the seed, the truths and
 sub-periods to score, and the run directory. Unknown keys are errors: a typo must not pass.
-Everything a run would refuse later is refused here, so ``harness run --explain`` catches it
+Everything a run would refuse later is refused here, so ``vintage-harness run --explain`` catches it
 (exit code 2, naming the file, line and key).
 
 **A spec is code.** A model type ``path/to/file.py:Class`` or ``package.module:Class`` imports
@@ -334,7 +334,7 @@ def _run_section(raw, path: Path, base: Path, out, check_store: bool) -> RunSect
     v = parse_section(RunSection, raw["run"], "[run]", path)
     store = (base / str(v["store"])).resolve()
     if check_store and not (store / "manifest.json").is_file():
-        raise _err(path, "[run] store", f"no vintage store at {store} (create one with 'harness vintages "
+        raise _err(path, "[run] store", f"no vintage store at {store} (create one with 'vintage-harness vintages "
                    "init')")
     out_dir = (Path(out).resolve() if out is not None else
                (base / str(v.get("out") or f"runs/{path.stem}")).resolve())

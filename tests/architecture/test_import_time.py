@@ -34,7 +34,7 @@ from harness.cli._app import main
 watch, commands = json.loads(sys.argv[1]), json.loads(sys.argv[2])
 out = []
 for argv in commands:
-    sys.argv = ["harness"] + argv
+    sys.argv = ["vintage-harness"] + argv
     try:
         main()
     except SystemExit:
@@ -53,7 +53,7 @@ def _run(watch, commands, cwd=ROOT):
 
 
 def test_help_of_every_command_imports_no_numerical_library():
-    """'harness --help' and every command's --help load none of numpy, pandas, scipy, xarray, rich's Markdown."""
+    """'vintage-harness --help' and every command's --help load none of numpy, pandas, scipy, xarray, rich's Markdown."""
     got = _run(HELP_HEAVY, [c + ["--help"] for c in HELP_COMMANDS])
     assert got == [[c + ["--help"], []] for c in HELP_COMMANDS]
 

@@ -96,7 +96,7 @@ def test_missing_store_is_a_data_error(tmp_path):
 
 
 def test_help_does_not_import_heavy_libraries():
-    """``harness --help`` imports neither pandas, xarray, numba nor matplotlib (fast start-up)."""
+    """``vintage-harness --help`` imports neither pandas, xarray, numba nor matplotlib (fast start-up)."""
     code = ("import sys; from harness.cli import app; "
             "heavy = [m for m in ('pandas', 'xarray', 'numba', 'matplotlib', 'properscoring') if m in sys.modules]; "
             "print(','.join(heavy))")

@@ -1,4 +1,4 @@
-"""``harness ledger export``: the ledger as a tidy table of quantiles per forecast.
+"""``vintage-harness ledger export``: the ledger as a tidy table of quantiles per forecast.
 
 Quantiles are checked against pandas' ``Series.quantile`` (linear interpolation, Hyndman and
 Fan 1996, definition 7), computed independently per cell from the ledger's draws.

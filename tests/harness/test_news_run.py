@@ -35,7 +35,7 @@ def test_news_adds_up_between_the_last_two_origins(news_run, model):
 
 
 def test_news_command_prints_the_table_and_refuses_bad_models(news_run):
-    """``harness news RUN`` prints contributions by variable; a model without a decomposition exits 1."""
+    """``vintage-harness news RUN`` prints contributions by variable; a model without a decomposition exits 2."""
     runner = CliRunner()
     res = runner.invoke(app, ["news", str(news_run.out)])
     assert res.exit_code == 0 and "total" in res.output and "reestimation" in res.output

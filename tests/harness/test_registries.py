@@ -65,7 +65,7 @@ def test_same_label_same_number_everywhere(evaluated):
 
 
 def test_unknown_score_is_a_usage_error(evaluated):
-    """``harness score --score rmse`` names the valid scores and exits 2."""
+    """``vintage-harness score --score rmse`` names the valid scores and exits 2."""
     ev, _, spec = evaluated
     res = runner.invoke(app, ["score", str(spec.out), "--score", "rmse"])
     assert res.exit_code == 2 and "interval_50" in res.output and "crps" in res.output

@@ -1,4 +1,4 @@
-"""``harness score`` on a run: relative-score tables, tests, sub-periods dated when no chronology is given."""
+"""``vintage-harness score`` on a run: relative-score tables, tests, sub-periods dated when no chronology is given."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""``harness vintages`` commands on the cases the review found: exit codes 0/1/2/3, one-line
+"""``vintage-harness vintages`` commands on the cases the review found: exit codes 0/1/2/3, one-line
 errors, all-or-nothing multi-file ingest, verify, cleanup, describe, atomic export.
 
 Exit codes follow the common Unix convention (0 success, 1 failure of the operation, 2 misuse

@@ -170,7 +170,7 @@ def test_a_second_run_on_the_same_directory_is_refused(tmp_path, small_store):
 
 
 def test_cache_commands(tmp_path, small_store):
-    """'harness cache info' lists entries and the runs using them; 'clean' without --apply removes nothing."""
+    """'vintage-harness cache info' lists entries and the runs using them; 'clean' without --apply removes nothing."""
     s = _spec(tmp_path, small_store)
     res = run(s, jobs=1, progress=False)
     r = CliRunner().invoke(app, ["cache", "info", "--spec", str(s.path)])

@@ -118,7 +118,7 @@ def test_joint_draws_name_the_missing_cache_entry(done, tmp_path):
     from harness.errors import RunError
 
     led = read_ledger(done.out)
-    with pytest.raises(RunError, match=r"tasks/.+\.parquet: the joint draws of .* rerun 'harness run"):
+    with pytest.raises(RunError, match=r"tasks/.+\.parquet: the joint draws of .* rerun 'vintage-harness run"):
         led.joint_draws(cache=tmp_path / "empty")
 
 

@@ -36,9 +36,9 @@ def test_the_tutorial_reads_as_commands():
     """The tutorial has the workflow's commands, each a harness command or a copy, in the documented order."""
     cmds = tutorial_commands()
     firsts = [c.split()[0] for c in cmds]
-    assert set(firsts) <= {"harness", "cp"}
-    order = ["harness demo", "harness vintages init", "harness run", "harness score", "harness sensitivity",
-             "harness report"]
+    assert set(firsts) <= {"vintage-harness", "cp"}
+    order = ["vintage-harness demo", "vintage-harness vintages init", "vintage-harness run", "vintage-harness score", "vintage-harness sensitivity",
+             "vintage-harness report"]
     pos = [next(i for i, c in enumerate(cmds) if c.startswith(o)) for o in order]
     assert pos == sorted(pos)
     text = (ROOT / "README.md").read_text(encoding="utf-8")
@@ -58,7 +58,7 @@ def test_every_tutorial_command_runs(tmp_path, monkeypatch):
     runner = CliRunner()
     for cmd in tutorial_commands():
         words = shlex.split(cmd, comments=True)
-        if words[0] == "harness":  # in-process: the same typer app the console script runs
+        if words[0] == "vintage-harness":  # in-process: the same typer app the console script runs
             r = runner.invoke(app, words[1:])
             assert r.exit_code == 0, f"{cmd}\n{r.output[-3000:]}\n{r.exception!r}"
             out = r.stdout
@@ -68,7 +68,7 @@ def test_every_tutorial_command_runs(tmp_path, monkeypatch):
             out = p.stdout
         if "--data-only" in cmd:
             reduce_spec(tmp_path / "mydemo" / "spec.toml")
-        if cmd.startswith("harness vintages revisions"):
+        if cmd.startswith("vintage-harness vintages revisions"):
             assert "news" in out and "noise" in out
     for f in ("mystore/manifest.json", "asof.csv", "scores.csv", "scores/forecast_scores.csv",
               "mydemo/run/report/report.html", "mydemo/run/report/appendix.html", "mydemo/run/sensitivity",
