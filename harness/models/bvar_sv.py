@@ -83,6 +83,9 @@ from harness.models.sv_blocks import sample_log_volatility
 from harness.models.sv_sampler import SVPosterior, _minnesota_independent, sv_gibbs
 from harness.models.sv_tables import KSC_MEANS, KSC_OFFSET, KSC_PROBS, KSC_VARIANCES
 
+_N_ITER, _BURN = 1500, 500  # per chain; see the class docstring
+_MIN_KEPT = 8  # kept draws per chain the split-chain diagnostics need
+
 __all__ = [
     "KSC_MEANS",
     "KSC_OFFSET",
@@ -149,12 +152,13 @@ class BayesianVARSV(BaseModel):
         "n_iter": [Interval(int, 1, None)],
         "burn": [Interval(int, 0, None)],
         "thin": [Interval(int, 1, None)],
+        "chains": [Interval(int, 1, None)],
     }
 
     def __init__(self, lags: int = 4, tightness: float = 0.2, cross: float = 0.5,
                  lag_decay: float = 1.0, prior_mean: float | dict = 0.0, a_prior_var: float = 10.0,
-                 vol_var_df: float = 5.0, vol_var_scale: float = 0.01, n_iter: int = 1500,
-                 burn: int = 500, thin: int = 1):
+                 vol_var_df: float = 5.0, vol_var_scale: float = 0.01, n_iter: int = _N_ITER,
+                 burn: int = _BURN, thin: int = 1, chains: int = 2):
         self.lags = lags
         self.tightness = tightness
         self.cross = cross
@@ -166,15 +170,17 @@ class BayesianVARSV(BaseModel):
         self.n_iter = n_iter
         self.burn = burn
         self.thin = thin
+        self.chains = chains
 
     @classmethod
     def check_params(cls, params: dict, model: str) -> None:
         """At least one Gibbs draw must be kept after burn-in and thinning."""
-        n_iter, burn, thin = (int(params.get(k, d)) for k, d in (("n_iter", 1500), ("burn", 500),
+        n_iter, burn, thin = (int(params.get(k, d)) for k, d in (("n_iter", _N_ITER), ("burn", _BURN),
                                                                  ("thin", 1)))
-        if (n_iter - burn) // thin < 1:
+        if (n_iter - burn) // thin < _MIN_KEPT:
             raise ModelParameterError(f"model {model!r}: parameter 'n_iter' must be large enough to "
-                                      f"keep a draw after burn={burn} with thin={thin}; got {n_iter}")
+                                      f"keep {_MIN_KEPT} draws per chain (for the diagnostics) after "
+                                      f"burn={burn} with thin={thin}; got {n_iter}")
 
     def fit_sample(self, y: np.ndarray, variables: list[str], rng: np.random.Generator) -> SVPosterior:
         """Run the Gibbs sampler on a balanced sample ``(T, n)``; sets ``posterior_`` and ``diagnostics_``."""
@@ -189,17 +195,20 @@ class BayesianVARSV(BaseModel):
                                         float(self.lag_decay), m, ar1_scales(y))
         post = sv_gibbs(y, p, b0, v0, float(self.a_prior_var), float(self.vol_var_df),
                         float(self.vol_var_scale), int(self.n_iter), int(self.burn), int(self.thin),
-                        rng)
+                        rng, chains=int(self.chains))
         idx = np.arange(n)
-        chains = {}
+        draws = {}
         for label, arr in (("own_lag1", post.coefs[:, idx, idx]), ("log_vol_last", post.log_vol[:, -1]),
                            ("vol_innov_var", post.phi)):
+            by_chain = post.by_chain(np.asarray(arr))  # (kept per chain, chains, n)
             for k, v in enumerate(variables):
-                chains[f"{label}[{v}]"] = np.asarray(arr)[:, k]
-        diag = mcmc_diagnostics(chains)
+                draws[f"{label}[{v}]"] = by_chain[:, :, k]
+        diag = mcmc_diagnostics(draws)
         self.posterior_ = post
-        self.diagnostics_ = {**diag, "n_iter": int(self.n_iter), "burn": int(self.burn),
-                             "thin": int(self.thin)}
+        self.diagnostics_ = {**diag, "n_kept": int(post.phi.shape[0]), "n_iter": int(self.n_iter),
+                             "burn": int(self.burn), "thin": int(self.thin),
+                             "vol_var_accept": {v: float(post.phi_accept[:, k].mean())
+                                                for k, v in enumerate(variables)}}
         return post
 
     def draw(self, layout: TargetLayout, rng: np.random.Generator) -> np.ndarray:
