@@ -233,9 +233,10 @@ def test_compiled_sampler_reproduces_the_reference_draw_for_draw(n_vars, lags, b
     b0, v0 = _minnesota_independent(n_vars, lags, 0.2, 0.5, 1.0, np.zeros(n_vars), ar1_scales(y))
     args = (y, lags, b0, v0, 10.0, 5.0, 0.01, 400, burn, thin)
     rng_ref, rng_new = np.random.default_rng(11), np.random.default_rng(11)
-    ref = sv_gibbs(*args, rng_ref, reference=True)
-    new = sv_gibbs(*args, rng_new)
-    assert new.phi.shape[0] == (400 - burn) // thin
+    ref = sv_gibbs(*args, rng_ref, reference=True, chains=2)
+    new = sv_gibbs(*args, rng_new, chains=2)
+    assert new.phi.shape[0] == 2 * ((400 - burn) // thin) and new.chains == 2
+    np.testing.assert_array_equal(new.phi_accept, ref.phi_accept)
     for field in ("coefs", "a", "log_vol", "phi"):
         np.testing.assert_allclose(getattr(new, field), getattr(ref, field), rtol=1e-7,
                                    atol=1e-9, err_msg=field)
