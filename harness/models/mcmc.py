@@ -1,14 +1,15 @@
 """MCMC diagnostics of kept draws: effective sample size, split R-hat, and a diagnostics summary.
 
 A sampler that keeps draws can put :func:`mcmc_diagnostics` into its ``diagnostics_``: per
-parameter the ESS and the (rank-normalised) split R-hat, their worst values, and whether both
-meet the thresholds of Vehtari et al. (2021): R-hat below 1.01 and an ESS of at least 400.
+parameter the multi-chain bulk ESS and the rank-normalised split R-hat of Vehtari et al. (2021),
+their worst values, and whether both meet the thresholds :data:`ESS_MIN` and :data:`RHAT_MAX`.
 
 References
 ----------
 Geyer, C. J. (1992). Practical Markov chain Monte Carlo. Statistical Science 7(4), 473-483.
 Gelman, A., Carlin, J. B., Stern, H. S., Dunson, D. B., Vehtari, A. and Rubin, D. B. (2013).
-Bayesian Data Analysis, 3rd ed., ch. 11 (split-chain R-hat, eq. 11.3-11.4).
+Bayesian Data Analysis, 3rd ed., ch. 11 (split-chain R-hat, eq. 11.3-11.4; multi-chain
+effective sample size, eq. 11.7-11.8).
 Vehtari, A., Gelman, A., Simpson, D., Carpenter, B. and Bürkner, P.-C. (2021). Rank-normalization,
 folding, and localization: an improved R-hat for assessing convergence of MCMC. Bayesian
 Analysis 16(2), 667-718.
@@ -20,13 +21,19 @@ from collections.abc import Mapping
 
 import numpy as np
 
-# Vehtari et al. (2021), section 4: "we recommend running at least four chains ... and using the
-# sample only if R-hat < 1.01" and a bulk/tail ESS above 400 (100 per chain for four chains).
-# Gelman et al. (2013, ch. 11) used the laxer 1.1.
-RHAT_MAX = 1.01
-ESS_MIN = 400.0
+# Screening thresholds a run summary can apply to every task's ``diagnostics_``: the worst
+# key parameter must have a bulk ESS (pooled over chains) of at least ESS_MIN and a split
+# R-hat of at most RHAT_MAX. Vehtari et al. (2021, section 4) recommend R-hat < 1.01 and a bulk
+# ESS above 400 (100 per chain with four chains) before a posterior is *reported*; the harness
+# only needs the predictive draws of a refit at each origin to be usable, and checks hundreds of
+# such refits, so it screens with the laxer 1.05 (the threshold in wide use before the 2021
+# paper; common practice, from memory) and with the 100 effective draws that Vehtari et al.
+# (2021) ask of each chain. Gelman et al. (2013, ch. 11) used 1.1.
+RHAT_MAX = 1.05
+ESS_MIN = 100.0
 
-__all__ = ["ESS_MIN", "RHAT_MAX", "effective_sample_size", "mcmc_diagnostics", "split_rhat"]
+__all__ = ["ESS_MIN", "RHAT_MAX", "bulk_ess", "effective_sample_size", "mcmc_diagnostics",
+           "multichain_ess", "split_rhat"]
 
 
 def effective_sample_size(x: np.ndarray) -> np.ndarray:
@@ -143,6 +150,86 @@ def split_rhat(x, *, rank: bool = True) -> float:
     return float(np.nanmax([bulk, tail]))
 
 
+def multichain_ess(x) -> float:
+    """Effective sample size of C chains of one scalar, with the between-chain variance.
+
+    Per lag ``t`` the combined autocorrelation is ``rho_t = 1 - (W - mean_c acov_c(t)) / var+``
+    (Gelman et al. 2013, eq. 11.7; ``W`` the mean within-chain variance, ``var+`` as in R-hat),
+    so chains that disagree lower the ESS instead of adding to it. ``tau = -1 + 2 sum_k P_k`` over
+    Geyer's (1992) initial positive and monotone sequence of pair sums
+    ``P_k = rho_{2k} + rho_{2k+1}``; ESS ``= N C / tau``.
+
+    Parameters
+    ----------
+    x : array_like, shape (N,) or (N, C)
+        Draws in iteration order, chains in columns (N >= 4).
+
+    Returns
+    -------
+    float
+        NaN for constant draws.
+
+    References
+    ----------
+    Gelman, A. et al. (2013). Bayesian Data Analysis, 3rd ed., eq. 11.7-11.8.
+    Geyer, C. J. (1992). Statistical Science 7(4), 473-483.
+    Vehtari, A. et al. (2021). Bayesian Analysis 16(2), 667-718, section 3.2.
+    """
+    a = np.asarray(x, dtype=np.float64)
+    a = a[:, None] if a.ndim == 1 else a
+    n, c = a.shape
+    if n < 4:
+        raise ValueError(f"multichain_ess: expected at least 4 draws per chain; got {a.shape}")
+    xc = a - a.mean(axis=0)
+    f = np.fft.rfft(xc, n=2 * n, axis=0)
+    acov = np.fft.irfft(f * np.conj(f), n=2 * n, axis=0)[:n] / n  # biased, per chain
+    w = float(np.mean(acov[0])) * n / (n - 1)
+    b_over_n = float(np.var(a.mean(axis=0), ddof=1)) if c > 1 else 0.0
+    var_plus = (n - 1) / n * w + b_over_n
+    if not var_plus > 0:
+        return float("nan")
+    rho = 1.0 - (w - acov.mean(axis=1)) / var_plus
+    rho[0] = 1.0
+    half = n // 2
+    pairs = rho[0: 2 * half: 2] + rho[1: 2 * half: 2]
+    stop = np.flatnonzero(pairs <= 0)
+    pairs = pairs[: stop[0]] if stop.size else pairs
+    pairs = np.minimum.accumulate(pairs)  # Geyer's initial monotone sequence
+    tau = max(-1.0 + 2.0 * float(pairs.sum()), 1.0 / np.log10(n * c))  # cap as Vehtari et al.
+    return float(n * c / tau)
+
+
+def bulk_ess(x) -> float:
+    """Bulk effective sample size: :func:`multichain_ess` of the rank-normalised split chains.
+
+    Vehtari et al. (2021, section 3.2): each chain is cut in halves, the pooled draws are
+    replaced by the normal scores of their ranks, and the multi-chain ESS is computed on the
+    ``2 C`` half-chains; robust to heavy tails (e.g. variance parameters).
+
+    Parameters
+    ----------
+    x : array_like, shape (N,) or (N, C)
+
+    Returns
+    -------
+    float
+        NaN for constant draws.
+
+    References
+    ----------
+    Vehtari, A. et al. (2021). Bayesian Analysis 16(2), 667-718.
+    """
+    a = np.asarray(x, dtype=np.float64)
+    a = a[:, None] if a.ndim == 1 else a
+    if a.ndim != 2 or a.shape[0] < 8:
+        raise ValueError(f"bulk_ess: expected draws of shape (N,) or (N, chains) with N >= 8; "
+                         f"got {np.shape(x)}")
+    s = _split(a)
+    if not np.ptp(s) > 0:
+        return float("nan")
+    return multichain_ess(_rank_normal(s))
+
+
 def mcmc_diagnostics(draws: Mapping[str, np.ndarray], *, rhat_max: float = RHAT_MAX,
                      ess_min: float = ESS_MIN) -> dict:
     """ESS and split R-hat of each parameter, with the convergence verdict a model keeps in ``diagnostics_``.
@@ -152,14 +239,15 @@ def mcmc_diagnostics(draws: Mapping[str, np.ndarray], *, rhat_max: float = RHAT_
     draws : mapping of str to ndarray, shape (N,) or (N, C)
         Kept draws of each scalar parameter (one chain, or C chains in columns).
     rhat_max : float
-        R-hat threshold (default 1.01, Vehtari et al. 2021).
+        R-hat threshold (default :data:`RHAT_MAX`): a parameter fails above it.
     ess_min : float
-        ESS threshold, summed over chains (default 400, Vehtari et al. 2021).
+        Threshold of the bulk ESS over all chains (default :data:`ESS_MIN`, :func:`bulk_ess`):
+        a parameter fails below it.
 
     Returns
     -------
     dict
-        ``{"ess": {name: float}, "rhat": {name: float}, "min_ess": float, "max_rhat": float,
+        ``{"ess": {name: bulk ESS}, "rhat": {name: float}, "min_ess": float, "max_rhat": float,
         "n_kept": int, "n_chains": int, "rhat_max": float, "ess_min": float,
         "converged": bool, "flagged": [names failing either threshold, sorted]}``. Constant
         parameters (NaN ESS and R-hat) are left out of the worst values and not flagged.
@@ -185,12 +273,11 @@ def mcmc_diagnostics(draws: Mapping[str, np.ndarray], *, rhat_max: float = RHAT_
             raise ValueError(f"mcmc_diagnostics: parameter {name!r} must have shape (N,) or "
                              f"(N, chains); got {np.shape(arr)}")
         n_kept, n_chains = max(n_kept, a.shape[0]), max(n_chains, a.shape[1])
-        e = effective_sample_size(a)
-        ess[name] = float(np.sum(e)) if np.all(np.isfinite(e)) else float("nan")
+        ess[name] = bulk_ess(a) if a.shape[0] >= 8 else float("nan")
         rhat[name] = split_rhat(a) if a.shape[0] >= 4 else float("nan")
     fe = [v for v in ess.values() if np.isfinite(v)]
     fr = [v for v in rhat.values() if np.isfinite(v)]
-    flagged = sorted(k for k in draws if (np.isfinite(rhat[k]) and rhat[k] >= rhat_max)
+    flagged = sorted(k for k in draws if (np.isfinite(rhat[k]) and rhat[k] > rhat_max)
                      or (np.isfinite(ess[k]) and ess[k] < ess_min))
     return {"ess": ess, "rhat": rhat,
             "min_ess": float(min(fe)) if fe else float("nan"),

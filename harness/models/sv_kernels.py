@@ -13,7 +13,7 @@ import threading
 import numpy as np
 import scipy.linalg as sla
 
-from harness.models.sv_tables import _MIX_LOGW, _MIX_MEANS, KSC_PROBS, KSC_VARIANCES
+from harness.models.sv_tables import _ACCEPT_TARGET, _MIX_LOGW, _MIX_MEANS, KSC_PROBS, KSC_VARIANCES
 
 
 def _tridiag_draw_reference(diag: np.ndarray, off: np.ndarray, rhs: np.ndarray,
@@ -250,16 +250,78 @@ def _volatility_loop(ystar, mix_mean, mix_prec, phi, h1_mean, h1_var, z, h, ld, 
             h[s, j] = (tv[s, j] + z[j * t + s] - ls[s, j] * h[s + 1, j]) / ld[s, j]
 
 
-def _gibbs_loop(yt, x, xt, xx, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_var, coefs, u, a,
-                h, phi, z_lin, unif, z_vol, chi, slot, mix_means, mix_logw, mix_vars,
-                logsq_offset, keep_coefs, keep_a, keep_h,
-                keep_phi):  # compiled by numba when available
+def _vol_loglik_loop(ystar, mix_mean, mix_prec, j, phi_j, h1_mean_j, h1_var):  # compiled by numba
+    """Equation ``j``'s :func:`harness.models.sv_blocks.log_vol_marginal` at ``phi_j``, one banded Cholesky pass."""
+    t = ystar.shape[0]
+    inv_phi = 1.0 / phi_j
+    out = -0.5 * t * np.log(2.0 * np.pi) - 0.5 * np.log(h1_var) - 0.5 * (t - 1) * np.log(phi_j)
+    quad = h1_mean_j * h1_mean_j / h1_var
+    ld_prev = 1.0
+    v_prev = 0.0
+    for s in range(t):
+        if s == 0:
+            dg = inv_phi + 1.0 / h1_var if t > 1 else 1.0 / h1_var
+        elif s == t - 1:
+            dg = inv_phi
+        else:
+            dg = 2.0 * inv_phi
+        pr = mix_prec[s, j]
+        dg += pr
+        r = ystar[s, j] - mix_mean[s, j]
+        b = r * pr
+        if s == 0:
+            b += h1_mean_j / h1_var
+            ld = np.sqrt(dg)
+            v = b / ld
+        else:
+            ls = -inv_phi / ld_prev
+            ld = np.sqrt(dg - ls * ls)
+            v = (b - ls * v_prev) / ld
+        out += 0.5 * np.log(pr) - np.log(ld)
+        quad += r * r * pr - v * v
+        ld_prev = ld
+        v_prev = v
+    return out - 0.5 * quad
+
+
+def _vol_var_loop(ystar, mix_mean, mix_prec, phi, h1_mean, h1_var, vol_var_df, vol_var_scale,
+                  log_step, z, unif, gain, accepted):  # compiled by numba when available
+    """Block 4 as :func:`harness.models.sv_blocks.draw_vol_var` (in place on ``phi``, ``log_step``).
+
+    ``z`` and ``unif`` hold the steps' normals and uniforms, step major (``S n`` each).
+    """
+    n = phi.shape[0]
+    n_steps = z.shape[0] // n
+    for j in range(n):
+        lp = np.log(phi[j])
+        cur = (_vol_loglik_loop(ystar, mix_mean, mix_prec, j, phi[j], h1_mean[j], h1_var)
+               - 0.5 * vol_var_df * lp - 0.5 * vol_var_df * vol_var_scale * np.exp(-lp))
+        for step in range(n_steps):
+            prop = lp + np.exp(log_step[j]) * z[step * n + j]
+            new = (_vol_loglik_loop(ystar, mix_mean, mix_prec, j, np.exp(prop), h1_mean[j], h1_var)
+                   - 0.5 * vol_var_df * prop - 0.5 * vol_var_df * vol_var_scale * np.exp(-prop))
+            acc = np.log(unif[step * n + j]) < new - cur
+            if acc:
+                lp = prop
+                cur = new
+                accepted[j] += 1.0
+            if gain > 0.0:
+                log_step[j] += gain * ((1.0 if acc else 0.0) - _ACCEPT_TARGET)
+        phi[j] = np.exp(lp)
+
+
+def _gibbs_loop(yt, x, xt, xx, b0, inv_v0, a_prior_var, vol_var_df, vol_var_scale, h1_mean,
+                h1_var, coefs, u, a, h, phi, log_step, accepted, z_lin, unif, z_phi, u_phi, z_vol,
+                slot, first, burn, mix_means, mix_logw, mix_vars, logsq_offset, keep_coefs,
+                keep_a, keep_h, keep_phi):  # compiled by numba when available
     """Gibbs iterations, blocks 1-5 as in :func:`_gibbs_reference`, from pre-drawn random numbers.
 
-    The state ``coefs, u, a, h, phi`` is updated in place; iteration ``it`` uses ``z_lin[it]``
-    (``n k`` coefficient normals, then ``1 + ... + (n - 1)`` impact normals), ``unif[it]``,
-    ``z_vol[it]`` (equation major) and ``chi[it]``, and is stored in the ``keep_*`` arrays at
-    ``slot[it]`` unless that is negative. Returns ``(0, 0)``, or ``(block, it)`` at the first
+    The state ``coefs, u, a, h, phi, log_step`` is updated in place; row ``it`` (iteration
+    ``first + it`` of the chain) uses ``z_lin[it]`` (``n k`` coefficient normals, then
+    ``1 + ... + (n - 1)`` impact normals), ``unif[it]``, ``z_phi[it]`` and ``u_phi[it]`` (the
+    ``phi`` steps, step major), ``z_vol[it]`` (equation major), and is stored in the ``keep_*``
+    arrays at ``slot[it]`` unless that is negative; ``accepted`` counts accepted ``phi``
+    proposals from iteration ``burn`` on. Returns ``(0, 0)``, or ``(block, it)`` at the first
     posterior precision that is not positive definite (block 1: coefficients, 2: impacts).
     """
     t, n = yt.shape
@@ -280,7 +342,9 @@ def _gibbs_loop(yt, x, xt, xx, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_va
     ld = np.empty((t, n))
     ls = np.empty((t, n))
     tv = np.empty((t, n))
+    scratch = np.zeros(n)
     for it in range(z_lin.shape[0]):
+        step = first + it
         for s in range(t):
             for j in range(n):
                 inv_lam[s, j] = np.exp(-h[s, j])
@@ -304,15 +368,11 @@ def _gibbs_loop(yt, x, xt, xx, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_va
             for j in range(n):
                 mix_mean[s, j] = mix_means[comp[s * n + j]]
                 mix_prec[s, j] = 1.0 / mix_vars[comp[s * n + j]]
-        # 4. log-volatility paths
+        # 4. phi given the indicators with the paths integrated out; 5. the paths given phi
+        gain = (step + 1.0) ** -0.6 if step < burn else 0.0
+        _vol_var_loop(ystar, mix_mean, mix_prec, phi, h1_mean, h1_var, vol_var_df, vol_var_scale,
+                      log_step, z_phi[it], u_phi[it], gain, accepted if step >= burn else scratch)
         _volatility_loop(ystar, mix_mean, mix_prec, phi, h1_mean, h1_var, z_vol[it], h, ld, ls, tv)
-        # 5. log-volatility innovation variances (scaled inverse chi-square)
-        for j in range(n):
-            sse = 0.0
-            for s in range(t - 1):
-                dh = h[s + 1, j] - h[s, j]
-                sse += dh * dh
-            phi[j] = (vol_sse0 + sse) / chi[it, j]
         kept = slot[it]
         if kept >= 0:  # element loops: array-to-slice assignment is slow to compile
             for j in range(n):
@@ -328,7 +388,8 @@ def _gibbs_loop(yt, x, xt, xx, b0, inv_v0, a_prior_var, vol_sse0, h1_mean, h1_va
 
 # compiled by _fast_kernels in this order (callees before their callers)
 _KERNELS = ("_tridiag_draw_loop", "_indicators_loop", "_spd_draw_loop", "_coef_sweep_loop",
-            "_impact_rows_loop", "_volatility_loop", "_gibbs_loop")
+            "_impact_rows_loop", "_volatility_loop", "_vol_loglik_loop", "_vol_var_loop",
+            "_gibbs_loop")
 _FAST: dict[str, object] = {}
 _FAST_LOCK = threading.Lock()
 

@@ -19,3 +19,8 @@ _MIX_LOGW = np.log(KSC_PROBS) - 0.5 * np.log(KSC_VARIANCES)
 _LOGSQ_OFFSET = 1e-6  # keeps log(e^2) finite for an exactly zero residual (common practice)
 _H1_PRIOR_VAR = 4.0
 _CONST_VAR = 1e4  # prior variance of the intercepts relative to s_i^2: nearly flat
+# acceptance rate the adaptive random-walk step of log phi aims for during burn-in: efficient for a
+# one-dimensional random walk Metropolis (Roberts & Rosenthal 2001, section 3)
+_ACCEPT_TARGET = 0.44
+_PHI_STEP0 = 1.0  # initial proposal s.d. of log phi (adapted during burn-in)
+_PHI_STEPS = 3  # Metropolis-Hastings steps of phi per Gibbs iteration (each costs one O(T) pass)

@@ -10,7 +10,13 @@ from harness.models import sv_kernels
 from harness.models.base import InsufficientDataError, ar1_scales
 from harness.models.bvar_sv import BayesianVARSV
 from harness.models.mcmc import effective_sample_size
-from harness.models.sv_blocks import draw_coefficients, draw_impacts, sample_log_volatility
+from harness.models.sv_blocks import (
+    draw_coefficients,
+    draw_impacts,
+    draw_vol_var,
+    log_vol_marginal,
+    sample_log_volatility,
+)
 from harness.models.sv_kernels import _fast_kernels, _indicators_reference, _tridiag_draw_reference
 from harness.models.sv_sampler import _minnesota_independent, sv_gibbs
 from harness.models.sv_tables import KSC_MEANS, KSC_OFFSET, KSC_PROBS, KSC_VARIANCES
@@ -227,9 +233,10 @@ def test_compiled_sampler_reproduces_the_reference_draw_for_draw(n_vars, lags, b
     b0, v0 = _minnesota_independent(n_vars, lags, 0.2, 0.5, 1.0, np.zeros(n_vars), ar1_scales(y))
     args = (y, lags, b0, v0, 10.0, 5.0, 0.01, 400, burn, thin)
     rng_ref, rng_new = np.random.default_rng(11), np.random.default_rng(11)
-    ref = sv_gibbs(*args, rng_ref, reference=True)
-    new = sv_gibbs(*args, rng_new)
-    assert new.phi.shape[0] == (400 - burn) // thin
+    ref = sv_gibbs(*args, rng_ref, reference=True, chains=2)
+    new = sv_gibbs(*args, rng_new, chains=2)
+    assert new.phi.shape[0] == 2 * ((400 - burn) // thin) and new.chains == 2
+    np.testing.assert_array_equal(new.phi_accept, ref.phi_accept)
     for field in ("coefs", "a", "log_vol", "phi"):
         np.testing.assert_allclose(getattr(new, field), getattr(ref, field), rtol=1e-7,
                                    atol=1e-9, err_msg=field)
@@ -304,14 +311,16 @@ def test_effective_sample_size_of_an_ar1_chain():
 
 
 def test_forecast_sets_diagnostics_and_draws_future_volatility():
-    """A forecast stores ESS diagnostics and its draws widen with the horizon."""
+    """A forecast stores ESS/R-hat diagnostics over its two chains and its draws widen with the horizon."""
     rng = np.random.default_rng(5)
     y = rng.standard_normal((80, 2)).cumsum(axis=0) * 0.2
     info = make_infoset(np.diff(y, axis=0), ["a", "b"])
     model = BayesianVARSV(lags=1, n_iter=600, burn=200)
     out = model.forecast(info, make_targets(info, horizons=(0, 8)), 2000, np.random.default_rng(0))
     diag = model.diagnostics_
-    assert diag["n_kept"] == 400 and set(diag["ess"]) >= {"own_lag1[a]", "vol_innov_var[b]"}
+    assert diag["n_kept"] == 2 * 400 and diag["n_chains"] == 2
+    assert set(diag["ess"]) >= {"own_lag1[a]", "vol_innov_var[b]"} and set(diag["rhat"]) == set(diag["ess"])
+    assert model.posterior_.phi.shape == (800, 2) and 0.1 < diag["vol_var_accept"]["a"] < 0.9
     assert all(v > 0 for v in diag["ess"].values())
     assert np.all(out.sel(horizon=8).std("draw") > 0.9 * out.sel(horizon=0).std("draw"))
 
@@ -321,3 +330,68 @@ def test_too_short_sample_raises_insufficient_data():
     info = make_infoset(np.random.default_rng(0).standard_normal((5, 2)), ["a", "b"])
     with pytest.raises(InsufficientDataError, match="lags \\+ 3"):
         BayesianVARSV(lags=4).forecast(info, make_targets(info), 10, np.random.default_rng(0))
+
+
+def test_integrated_log_volatility_likelihood_equals_the_dense_gaussian():
+    """log p(ystar | s, phi) from the banded factor equals scipy's multivariate normal logpdf with
+    covariance D + Cov(h), Cov(h_s, h_t) = h1_var + phi (min(s, t) - 1) for a random walk (common
+    practice), in the reference and the compiled kernel (Chan & Jeliazkov 2009)."""
+    rng = np.random.default_rng(20)
+    t, n = 15, 3
+    ystar = rng.normal(-1, 2, (t, n))
+    mm, vv = rng.uniform(-3, 1, (t, n)), rng.uniform(0.2, 5.0, (t, n))
+    phi, h1, v1 = np.array([0.02, 0.3, 1.5]), np.array([0.5, -1.0, 0.0]), 4.0
+    got = log_vol_marginal(ystar, mm, vv, phi, h1, v1)
+    s = np.arange(t)
+    for j in range(n):
+        cov = v1 + phi[j] * np.minimum.outer(s, s) + np.diag(vv[:, j])
+        want = stats.multivariate_normal(mm[:, j] + h1[j], cov).logpdf(ystar[:, j])
+        assert got[j] == pytest.approx(want, rel=1e-10)
+        fast = _compiled("_vol_loglik_loop")(ystar, mm, 1.0 / vv, j, phi[j], h1[j], v1)
+        assert fast == pytest.approx(want, rel=1e-10)
+
+
+def test_compiled_phi_step_matches_the_reference_step():
+    """Compiled and NumPy Metropolis-Hastings steps of phi give the same draws, scales and counts."""
+    rng = np.random.default_rng(21)
+    t, n, steps = 40, 3, 5
+    ystar, mm = rng.normal(-1, 2, (t, n)), rng.uniform(-3, 1, (t, n))
+    vv = rng.uniform(0.2, 5.0, (t, n))
+    phi, h1 = np.array([0.02, 0.3, 0.1]), np.array([0.5, -1.0, 0.0])
+    z, u = rng.standard_normal((steps, n)), rng.random((steps, n))
+    ref_step, ref_acc = np.zeros(n), np.zeros(n)
+    ref = draw_vol_var(ystar, mm, vv, phi, h1, 4.0, 5.0, 0.01, ref_step, z, np.log(u), 0.3, ref_acc)
+    new, new_step, new_acc = phi.copy(), np.zeros(n), np.zeros(n)
+    _compiled("_vol_var_loop")(ystar, mm, 1.0 / vv, new, h1, 4.0, 5.0, 0.01, new_step, z.ravel(),
+                               u.ravel(), 0.3, new_acc)
+    np.testing.assert_allclose(new, ref, rtol=1e-12)
+    np.testing.assert_allclose(new_step, ref_step, rtol=1e-12)
+    np.testing.assert_array_equal(new_acc, ref_acc)
+    assert 0 < ref_acc.sum() < steps * n
+
+
+def test_phi_step_targets_its_conditional_posterior():
+    """Many phi steps with the indicators fixed reach the posterior of log phi computed by
+    quadrature of marginal likelihood x scaled inverse chi-square prior on a grid (common practice)."""
+    rng = np.random.default_rng(22)
+    t, n = 30, 1
+    h = np.cumsum(rng.normal(0, 0.3, (t, n)), axis=0)
+    comp = rng.choice(7, size=(t, n), p=KSC_PROBS / KSC_PROBS.sum())
+    mm, vv = (KSC_MEANS + KSC_OFFSET)[comp], KSC_VARIANCES[comp]
+    ystar = h + mm + np.sqrt(vv) * rng.standard_normal((t, n))
+    grid = np.linspace(-9, 2, 2001)
+    ll = np.array([log_vol_marginal(ystar, mm, vv, np.exp([g]), np.zeros(1), 4.0)[0] for g in grid])
+    logpost = ll - 2.5 * grid - 2.5 * 0.01 * np.exp(-grid)  # df 5, scale 0.01, Jacobian
+    w = np.exp(logpost - logpost.max())
+    w /= w.sum()
+    mean, sd = w @ grid, np.sqrt(w @ grid**2 - (w @ grid) ** 2)
+    phi, step, acc = np.array([0.01]), np.zeros(1), np.zeros(1)
+    draws = np.empty(20_000)
+    kernel = _compiled("_vol_var_loop")
+    for i in range(draws.size):
+        kernel(ystar, mm, 1.0 / vv, phi, np.zeros(1), 4.0, 5.0, 0.01, step, rng.standard_normal(1),
+               rng.random(1), 0.0, acc)
+        draws[i] = np.log(phi[0])
+    se = draws.std() / np.sqrt(effective_sample_size(draws))
+    assert abs(draws.mean() - mean) < 4 * se
+    assert draws.std() == pytest.approx(sd, rel=0.05)

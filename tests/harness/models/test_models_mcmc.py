@@ -68,8 +68,35 @@ def test_diagnostics_flag_what_fails_the_thresholds():
     drift = rng.standard_normal(4000) + np.linspace(0, 1, 4000)
     d = mcmc.mcmc_diagnostics({"good": good, "sticky": sticky, "drift": drift, "fixed": np.ones(4000)})
     assert d["flagged"] == ["drift", "sticky"] and not d["converged"]
-    assert d["rhat_max"] == 1.01 and d["ess_min"] == 400
-    assert d["ess"]["sticky"] < 400 <= d["ess"]["good"] and math.isnan(d["rhat"]["fixed"])
+    assert d["rhat_max"] == mcmc.RHAT_MAX and d["ess_min"] == mcmc.ESS_MIN
+    assert d["ess"]["sticky"] < mcmc.ESS_MIN <= d["ess"]["good"] and math.isnan(d["rhat"]["fixed"])
     assert d["min_ess"] == min(v for v in d["ess"].values() if not math.isnan(v))
     ok = mcmc.mcmc_diagnostics({"good": good})
     assert ok["converged"] and ok["n_kept"] == 4000 and ok["n_chains"] == 1
+
+
+@pytest.mark.parametrize("rho", [0.0, 0.5, 0.9])
+def test_multichain_ess_of_agreeing_ar1_chains_is_the_total_over_tau(rho):
+    """Four agreeing AR(1) chains of 20 000: multi-chain ESS within 10 % of 4 N (1 - rho)/(1 + rho)
+    (Gelman et al. 2013, eq. 11.7-11.8; tau of an AR(1) chain, Geyer 1992), and the bulk ESS of
+    rank-normalised split chains too (Vehtari et al. 2021: ranks do not change a Gaussian chain)."""
+    x = _ar1_chains(rho, 20_000, 4, seed=20 + int(rho * 10))
+    want = 4 * 20_000 * (1 - rho) / (1 + rho)
+    assert mcmc.multichain_ess(x) == pytest.approx(want, rel=0.10)
+    assert mcmc.bulk_ess(x) == pytest.approx(want, rel=0.10)
+
+
+def test_multichain_ess_drops_when_chains_disagree():
+    """Chains of i.i.d. draws whose means differ by 1 s.d.: summing per-chain ESS says ~ 4 N,
+    the multi-chain ESS (between-chain variance in var+, Gelman et al. 2013 eq. 11.7) says far less."""
+    x = np.random.default_rng(7).standard_normal((2_000, 4))
+    x[:, 2:] += 1.0
+    assert mcmc.effective_sample_size(x).sum() > 0.9 * 8_000
+    assert mcmc.multichain_ess(x) < 0.25 * 8_000
+    assert mcmc.bulk_ess(x) < 0.25 * 8_000
+
+
+def test_bulk_ess_is_invariant_to_a_monotone_transform():
+    """Rank normalisation (Vehtari et al. 2021, eq. 14) makes the bulk ESS of exp(x) equal that of x."""
+    x = _ar1_chains(0.7, 3_000, 2, seed=9)
+    assert mcmc.bulk_ess(np.exp(3 * x)) == pytest.approx(mcmc.bulk_ess(x), rel=1e-12)
