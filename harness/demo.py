@@ -148,7 +148,7 @@ def demo_spec_text(*, small: bool = False) -> str:
         return DEMO_SPEC.format(draws=400, start="2016-01-01", hmax=4, min_scored=6,
                                 sv_extra="n_iter = 600\nburn = 200\n")
     return DEMO_SPEC.format(draws=2000, start="2006-01-01", hmax=8, min_scored=12,
-                            sv_extra="n_iter = 1000\nburn = 300\n")
+                            sv_extra="n_iter = 1000\nburn = 300\nchains = 4\n")
 
 
 def nowcast_spec_text(*, small: bool = False) -> str:
@@ -211,7 +211,7 @@ def run_nowcast(spec_path: Path, out: Path, *, jobs: int | None = None, echo=pri
     from harness.report.make import make_report
     from harness.report.terminal import decision_text
     from harness.spec import load_spec
-    from harness.ui import Display, run_summary
+    from harness.ui import Display
     from harness.verdicts import decide
 
     ui = display or Display()
@@ -219,7 +219,7 @@ def run_nowcast(spec_path: Path, out: Path, *, jobs: int | None = None, echo=pri
     with ui.stage(f"nowcasting backtest: {len(spec.models)} models at the day after each ip release, "
                   f"{spec.draws} draws per forecast", live=False):
         res = run(spec, jobs=jobs, progress=not ui.quiet, log=ui.labelled("nowcasting run"))
-    echo(run_summary(res))
+    echo(res.summary())
     with ui.stage("scoring the nowcasts"):
         ledger = read_ledger(res.run_dir)
         ev = evaluate(ledger)
@@ -252,9 +252,8 @@ def run_pipeline(spec_path: Path, out: Path, *, jobs: int | None = None, echo=pr
     spec = load_spec(spec_path)
     with ui.stage(f"backtest: {len(spec.models)} models, {spec.draws} draws per forecast", live=False):
         res = run(spec, jobs=jobs, progress=not ui.quiet, log=ui.labelled("real-time run"))
-    from harness.ui import run_summary
 
-    echo(run_summary(res))
+    echo(res.summary())
     paths = {"run": res.run_dir}
     with ui.stage("scoring under the spec's truth (scores and tests)"):
         ledger = read_ledger(res.run_dir)  # read once: scoring and the report's charts share it

@@ -71,8 +71,9 @@ class RunResult:
         return tuple(self.manifest.diagnostic_warnings)
 
     def summary(self) -> str:
-        s = (f"{self.total} tasks: {self.computed} computed, {self.cached} from cache, {len(self.failed)} failed "
-             f"in {self.timings.get('total', 0):.1f}s; ledger in {self.run_dir}")
+        from harness.ui.progress import run_summary
+
+        s = run_summary(self)  # counts, with failed tasks apart from computed and cached ones
         if self.warnings:
             s += "\n" + "\n".join(f"warning: {w}" for w in self.warnings)
         if self.failed:

@@ -93,7 +93,7 @@ def test_bvar_records_its_hyperparameters_and_log_ml(tmp_path, small_store):
 def test_the_mcmc_check_warns_for_a_sticky_chain_only(tmp_path, small_store):
     """The built-in check reads mcmc_diagnostics' verdict: an AR(1) chain with rho = 0.99 has an
     ESS near N(1 - rho)/(1 + rho) ≈ 10 per 1,000 draws (Geyer 1992, the AR(1) integrated
-    autocorrelation time), far below 400 (Vehtari et al. 2021), so every origin is flagged; an
+    autocorrelation time), far below the threshold of 100 (harness.models.mcmc.ESS_MIN), so every origin is flagged; an
     independent chain (rho = 0) is not."""
     extra = ('[models.sticky]\ntype = "tests.harness.backtest.models:StickyChainModel"\nrho = 0.99\n'
              '[models.iid]\ntype = "tests.harness.backtest.models:StickyChainModel"\nrho = 0.0\n')
@@ -101,5 +101,5 @@ def test_the_mcmc_check_warns_for_a_sticky_chain_only(tmp_path, small_store):
     warnings = [w for w in res.manifest.diagnostic_warnings if "MCMC" in w]
     assert len(warnings) == 1 and warnings[0].startswith("sticky:"), warnings
     n = len(set(read_ledger(res.run_dir).diagnostics.query("model == 'sticky'")["origin"]))
-    assert f"at {n} of {n} origins" in warnings[0] and "threshold 400" in warnings[0]
+    assert f"at {n} of {n} origins" in warnings[0] and "threshold 100" in warnings[0]
     assert "warning: sticky" in res.summary()

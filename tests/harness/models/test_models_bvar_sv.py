@@ -311,16 +311,16 @@ def test_effective_sample_size_of_an_ar1_chain():
 
 
 def test_forecast_sets_diagnostics_and_draws_future_volatility():
-    """A forecast stores ESS/R-hat diagnostics over its two chains and its draws widen with the horizon."""
+    """A forecast stores ESS/R-hat diagnostics over its chains (default 4) and its draws widen with the horizon."""
     rng = np.random.default_rng(5)
     y = rng.standard_normal((80, 2)).cumsum(axis=0) * 0.2
     info = make_infoset(np.diff(y, axis=0), ["a", "b"])
     model = BayesianVARSV(lags=1, n_iter=600, burn=200)
     out = model.forecast(info, make_targets(info, horizons=(0, 8)), 2000, np.random.default_rng(0))
     diag = model.diagnostics_
-    assert diag["n_kept"] == 2 * 400 and diag["n_chains"] == 2
+    assert diag["n_kept"] == 4 * 400 and diag["n_chains"] == 4
     assert set(diag["ess"]) >= {"own_lag1[a]", "vol_innov_var[b]"} and set(diag["rhat"]) == set(diag["ess"])
-    assert model.posterior_.phi.shape == (800, 2) and 0.1 < diag["vol_var_accept"]["a"] < 0.9
+    assert model.posterior_.phi.shape == (1600, 2) and 0.1 < diag["vol_var_accept"]["a"] < 0.9
     assert all(v > 0 for v in diag["ess"].values())
     assert np.all(out.sel(horizon=8).std("draw") > 0.9 * out.sel(horizon=0).std("draw"))
 
