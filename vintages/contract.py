@@ -20,11 +20,13 @@ import json
 import types
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
-import xarray as xr
+
+if TYPE_CHECKING:  # annotations only: reading a contract type does not import xarray
+    import xarray as xr
 
 from vintages._types import FREQS
 from vintages.periods import period_index, period_of_date

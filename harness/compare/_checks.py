@@ -5,7 +5,8 @@ from __future__ import annotations
 from typing import Literal
 
 import numpy as np
-from scipy import special
+
+from harness._lazy import special
 
 Alternative = Literal["two-sided", "less", "greater"]
 ALTERNATIVES: tuple[str, ...] = ("greater", "less", "two-sided")

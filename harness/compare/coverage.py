@@ -6,8 +6,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import special
 
+from harness._lazy import special
 from harness.compare._checks import chi2_sf
 
 

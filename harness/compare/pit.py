@@ -8,8 +8,8 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import special
 
+from harness._lazy import special
 from harness.compare._checks import _check_choice, _check_int, chi2_sf
 from harness.compare.bootstrap import bootstrap_indices
 

@@ -66,6 +66,10 @@ def load(run_dir: Path, key: str, manifest):
         frames = {n: pd.read_parquet(d / f"{n}.parquet") for n in _TABLES}
     except (OSError, ValueError):
         return None  # a damaged entry is recomputed
+    for name, kinds in (meta.get("datetime_units") or {}).items():  # the units the evaluation had
+        for c, unit in kinds.items():
+            if c in frames[name]:
+                frames[name][c] = frames[name][c].astype(unit)
     fc = frames["forecasts"]
     if "subperiods" in fc:
         fc["subperiods"] = fc["subperiods"].map(lambda s: s.split(";") if isinstance(s, str) and s else [])
@@ -106,6 +110,8 @@ def store(run_dir: Path, key: str, ev) -> None:
             tp[c] = tp[c].astype(str)
     frames = {"forecasts": fc, "table": ev.table, "relative": ev.relative, "tests": ev.tests, "mcs": ev.mcs,
               "calibration": ev.calibration, "fluctuation": ev.fluctuation, "turning_points": tp}
+    units = {name: {c: str(frame[c].dtype) for c in frame.columns
+                    if pd.api.types.is_datetime64_any_dtype(frame[c].dtype)} for name, frame in frames.items()}
     for name, frame in frames.items():
         f = frame.copy()
         for c in f.columns:
@@ -119,5 +125,39 @@ def store(run_dir: Path, key: str, ev) -> None:
             "subperiod_names": list(ev.subperiod_names), "subperiod_categories": cats,
             "regimes": {"index": [str(p) for p in reg.index], "values": [str(v) for v in reg.to_numpy()],
                         "freq": (reg.index.freqstr or "Q")[:1]},
-            "turning_points_freq": freq or "Q"}
+            "turning_points_freq": freq or "Q", "datetime_units": units}
     atomic_write_bytes(d / "meta.json", (json.dumps(meta) + "\n").encode())
+
+
+def load_extra(run_dir: Path, key: str, name: str, tables: tuple[str, ...]) -> dict | None:
+    """Tables a later stage stored beside the evaluation ``key`` (:func:`store_extra`), or None."""
+    d = _entry(run_dir, key)
+    if not key or not (d / f"{name}.done").is_file():
+        return None
+    try:
+        return {t: pd.read_parquet(d / f"{name}-{t}.parquet") for t in tables}
+    except (OSError, ValueError):
+        return None
+
+
+def store_extra(run_dir: Path, key: str, name: str, frames: dict) -> None:
+    """Keep a later stage's tables beside the evaluation ``key`` (each atomically, then a marker)."""
+    from vintages import atomic_write_bytes
+
+    d = _entry(run_dir, key)
+    if not key or not (d / "meta.json").is_file():
+        return
+    for t, frame in frames.items():
+        atomic_write_bytes(d / f"{name}-{t}.parquet", frame.to_parquet(index=False))
+    atomic_write_bytes(d / f"{name}.done", b"")
+
+
+def stage_key(**settings: Any) -> str:
+    """A short digest of a later stage's settings and of its code (for :func:`store_extra` names)."""
+    import harness
+
+    h = hashlib.sha256(json.dumps(settings, sort_keys=True, default=str).encode())
+    for f in sorted((Path(harness.__file__).parent / "verdicts").glob("*.py")):
+        h.update(f.name.encode() + b"\0" + f.read_bytes())
+    h.update(_code_digest().encode())
+    return h.hexdigest()[:16]

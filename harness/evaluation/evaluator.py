@@ -59,6 +59,9 @@ class Evaluation:
     turning_points: pd.DataFrame
     subperiod_names: list[str] = field(default_factory=list)
     manifest: object = None  # RunManifest
+    #: the evaluation cache's key of this evaluation ("" when not cached); later stages (the
+    #: verdicts' band tests) keep their own results under it
+    cache_key: str = ""
 
     @property
     def missing(self) -> pd.DataFrame:
@@ -166,6 +169,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
                                     seed=seed, test_settings=test_settings)
         hit = ecache.load(run_dir, key, man)
         if hit is not None:
+            hit.cache_key = key
             return hit
     ledger = run if isinstance(run, Ledger) else read_ledger(run)
     freq = man.freq
@@ -229,6 +233,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     if key is not None:
         try:
             ecache.store(run_dir, key, ev)
+            ev.cache_key = key
         except OSError:  # a read-only run directory: the evaluation is still returned
             pass
     return ev

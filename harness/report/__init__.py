@@ -9,12 +9,37 @@ of the decision page comes from :mod:`harness.verdicts`.
 
 from __future__ import annotations
 
-from harness.report.changes import changes
-from harness.report.html import build_report
-from harness.report.inputs import Extras, gather_extras
-from harness.report.labels import CAUTION, h_label
-from harness.report.make import make_report
-from harness.report.sections import SECTION_IDS, SECTIONS, Section, page_ids
+#: public name -> the module that defines it (loaded on first use, so that importing a light
+#: submodule such as :mod:`harness.report.textout` does not load the HTML and figure machinery)
+_PUBLIC = {
+    "build_report": "harness.report.html",
+    "Extras": "harness.report.inputs",
+    "gather_extras": "harness.report.inputs",
+    "CAUTION": "harness.report.labels",
+    "h_label": "harness.report.labels",
+    "make_report": "harness.report.make",
+    "SECTION_IDS": "harness.report.sections",
+    "SECTIONS": "harness.report.sections",
+    "Section": "harness.report.sections",
+    "page_ids": "harness.report.sections",
+}
 
-__all__ = ["CAUTION", "SECTIONS", "SECTION_IDS", "Extras", "Section", "build_report", "changes",
-           "gather_extras", "h_label", "make_report", "page_ids"]
+# eager: the function shares its name with its module, which would otherwise shadow it once
+# imported (pandas only)
+from harness.report.changes import changes  # noqa: E402, F401
+
+__all__ = sorted([*_PUBLIC, "changes"])
+
+
+def __getattr__(name: str):
+    if name in _PUBLIC:
+        import importlib
+
+        value = getattr(importlib.import_module(_PUBLIC[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'harness.report' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_PUBLIC))

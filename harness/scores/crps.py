@@ -16,8 +16,8 @@ import math
 from collections.abc import Callable
 
 import numpy as np
-from scipy import special
 
+from harness._lazy import special
 from harness.scores.kernels import (
     QUANTILE_WEIGHTS,
     TAIL_SIDES,

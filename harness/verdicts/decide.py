@@ -91,29 +91,38 @@ class Verdicts:
         return t[(t["model"] == model) & (t["variable"] == variable) & (t["band"] == band)].iloc[0]
 
 
-def _band_ratio(table: pd.DataFrame, model: str, bench: str, variable: str, band: Band,
-                score: str, subperiod: str) -> tuple[float, int]:
-    """Forecast-weighted band means of ``score`` (model ÷ benchmark) from the cell table, and n."""
-    t = table[(table["variable"] == variable) & (table["subperiod"] == subperiod)
-              & table["horizon"].isin(band.horizons)]
-    a = t[t["model"] == model].set_index("horizon")
-    b = t[t["model"] == bench].set_index("horizon")
-    hs = [h for h in band.horizons if h in a.index and h in b.index]
+def _cell_lookup(table: pd.DataFrame, score: str, subperiod: str) -> dict:
+    """``{(variable, model, horizon): (mean score, n)}`` of the cell table's ``subperiod`` rows."""
+    t = table[table["subperiod"] == subperiod]
+    return {(str(v), str(m), int(h)): (float(s), float(n)) for v, m, h, s, n in
+            zip(t["variable"], t["model"], t["horizon"], t[score], t["n"], strict=True)}
+
+
+def _band_ratio(cells: dict, model: str, bench: str, variable: str, band: Band) -> tuple[float, int]:
+    """Forecast-weighted band means of the score (model ÷ benchmark) from :func:`_cell_lookup`, and n."""
+    hs = [h for h in band.horizons if (variable, model, h) in cells and (variable, bench, h) in cells]
     if not hs:
         return math.nan, 0
-    n = a.loc[hs, "n"].to_numpy(dtype=float)
-    num = float(np.nansum(n * a.loc[hs, score].to_numpy(dtype=float)))
-    den = float(np.nansum(n * b.loc[hs, score].to_numpy(dtype=float)))
+    n = np.array([cells[(variable, model, h)][1] for h in hs])
+    num = float(np.nansum(n * np.array([cells[(variable, model, h)][0] for h in hs])))
+    den = float(np.nansum(n * np.array([cells[(variable, bench, h)][0] for h in hs])))
     return (num / den if den > 0 else math.nan), int(n.sum())
 
 
-def _band_losses(fc: pd.DataFrame, variable: str, band: Band, score: str, subperiod: str) -> pd.DataFrame:
-    """Per origin × model, the mean loss over the band's horizons (origins where every model has them all)."""
+def _in_subperiod(fc: pd.DataFrame, subperiod: str) -> pd.DataFrame:
+    """The forecasts whose target period lies in ``subperiod``."""
+    return fc[fc["subperiods"].map(lambda s: subperiod in s).to_numpy(dtype=bool)]
+
+
+def _band_losses(fc: pd.DataFrame, variable: str, band: Band, score: str) -> pd.DataFrame:
+    """Per origin × model, the mean loss over the band's horizons (origins where every model has them all).
+
+    ``fc``: the forecasts of one sub-period (:func:`_in_subperiod`)."""
     g = fc[(fc["variable"] == variable) & fc["horizon"].isin(band.horizons)]
-    g = g[g["subperiods"].map(lambda s: subperiod in s)]
     if not len(g):
         return pd.DataFrame()
-    wide = g.pivot_table(index=["origin"], columns=["model", "horizon"], values=score, aggfunc="first")
+    g = g.drop_duplicates(["origin", "model", "horizon"])
+    wide = g.set_index(["origin", "model", "horizon"])[score].unstack(["model", "horizon"]).sort_index()
     models = list(pd.unique(g["model"]))
     cols = pd.MultiIndex.from_product([models, list(band.horizons)], names=["model", "horizon"])
     wide = wide.reindex(columns=cols).dropna()
@@ -129,9 +138,10 @@ def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int
     pset = comparison_tests("set")
     pparams = pair.settings(settings.get(pair.name))
     rows, sets = [], []
+    fc_sub = _in_subperiod(ev.forecasts, subperiod)
     for var in pd.unique(ev.forecasts["variable"]):
         for band in bands:
-            wide = _band_losses(ev.forecasts, var, band, score, subperiod)
+            wide = _band_losses(fc_sub, var, band, score)
             if wide.empty or ev.benchmark not in wide.columns:
                 continue
             tp = ev.forecasts[(ev.forecasts["variable"] == var) & (ev.forecasts["horizon"] == band.max_h)]
@@ -162,16 +172,43 @@ def _band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int
             pd.DataFrame(sets, columns=["model", "variable", "band", "in_set", "pvalue", "n", "alpha"]))
 
 
+def _cached_band_tests(ev, bands: Sequence[Band], score: str, subperiod: str, seed: int,
+                       settings: Mapping[str, Any]) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """:func:`_band_tests`, kept in the evaluation cache beside a cached evaluation (the tests and
+    bootstraps cost more than everything else a rerun of ``score`` does)."""
+    from harness.evaluation import cache as ecache
+
+    key = getattr(ev, "cache_key", "") or ""
+    name = "bands-" + ecache.stage_key(bands=[(b.label, list(b.horizons)) for b in bands], score=score,
+                                       subperiod=subperiod, seed=seed, settings=dict(settings)) if key else ""
+    if key:
+        hit = ecache.load_extra(ev.run_dir, key, name, ("tests", "sets"))
+        if hit is not None:
+            return hit["tests"], hit["sets"]
+    tests, sets = _band_tests(ev, bands, score, subperiod, seed, settings)
+    if key:
+        try:
+            ecache.store_extra(ev.run_dir, key, name, {"tests": tests, "sets": sets})
+        except OSError:  # a read-only run directory: the verdicts are still returned
+            pass
+    return tests, sets
+
+
 def _pit_columns(cal: pd.DataFrame) -> list[str]:
     return [c for c in cal.columns if c.endswith("_p") and not c.startswith("cover_") and c != "rs_cvm_p"]
 
 
-def _calibration(ev, model: str, variable: str, band: Band) -> tuple[str, float, list[int]]:
-    """``("fails"|"passes"|"untested", smallest p, horizons where a test rejects)`` for the band."""
+def _calibration(ev, model: str, variable: str, band: Band, groups: dict | None = None
+                 ) -> tuple[str, float, list[int]]:
+    """``("fails"|"passes"|"untested", smallest p, horizons where a test rejects)`` for the band.
+
+    ``groups``: the calibration table grouped by (model, variable), to look up instead of filter."""
     cal = ev.calibration
     if cal is None or not len(cal):
         return "untested", math.nan, []
-    c = cal[(cal["model"] == model) & (cal["variable"] == variable) & cal["horizon"].isin(band.horizons)]
+    c = (groups.get((model, variable), cal.iloc[:0]) if groups is not None
+         else cal[(cal["model"] == model) & (cal["variable"] == variable)])
+    c = c[c["horizon"].isin(band.horizons)]
     cols = _pit_columns(cal)
     ps = [(int(h), float(p)) for h, r in zip(c["horizon"], c[cols].itertuples(index=False), strict=True)
           for p in r if p is not None and np.isfinite(p)]
@@ -261,15 +298,23 @@ def decide(evaluation, *, sensitivity=None, since=None, alpha: float = 0.10, sco
     settings = dict(settings if settings is not None else (getattr(getattr(man, "scoring", None), "tests", None) or {}))
     bands = list(bands or horizon_bands(pd.unique(ev.forecasts["horizon"])))
     bench = ev.benchmark
-    tests, sets = _band_tests(ev, bands, score, subperiod, seed, settings)
+    tests, sets = _cached_band_tests(ev, bands, score, subperiod, seed, settings)
     leaders = _leaders(sensitivity, bands, bench)
     test_label = _test_label(settings)
     rows, claims = [], {}
     models = [m for m in pd.unique(ev.table["model"]) if m != bench]
+    # look-ups instead of one boolean filter of each table per row
+    cells = _cell_lookup(ev.table, score, subperiod)
+    earlier = _cell_lookup(since.table, score, subperiod) if since is not None else {}
+    test_rows = {(r["model"], r["variable"], r["band"]): r for r in tests.to_dict("records")}
+    set_rows = {(r["model"], r["variable"], r["band"]): r for r in sets.to_dict("records")}
+    cal = ev.calibration
+    cal_groups = ({(str(m), str(v)): g for (m, v), g in cal.groupby(["model", "variable"], sort=False)}
+                  if cal is not None and len(cal) else None)
     for var in pd.unique(ev.table["variable"]):
         for band in bands:
             for m in models:
-                ratio, n_fc = _band_ratio(ev.table, m, bench, var, band, score, subperiod)
+                ratio, n_fc = _band_ratio(cells, m, bench, var, band)
                 if not np.isfinite(ratio):
                     # nothing to decide: no forecasts, or every model returns the published value
                     # (the incumbent's loss is zero, as for targets already published)
@@ -277,11 +322,10 @@ def decide(evaluation, *, sensitivity=None, since=None, alpha: float = 0.10, sco
                 key = {"model": m, "variable": var, "band": band.label}
                 cl = [Claim("ratio", ratio, "table", dict(key, horizons=list(band.horizons), score=score,
                                                          subperiod=subperiod))]
-                t = tests[(tests["model"] == m) & (tests["variable"] == var) & (tests["band"] == band.label)]
-                t = t.iloc[0] if len(t) else None
-                st = sets[(sets["model"] == m) & (sets["variable"] == var) & (sets["band"] == band.label)]
-                in_set = bool(st["in_set"].iloc[0]) if len(st) else None
-                cal, cal_p, cal_bad = _calibration(ev, m, var, band)
+                t = test_rows.get((m, var, band.label))
+                st = set_rows.get((m, var, band.label))
+                in_set = bool(st["in_set"]) if st is not None else None
+                cal, cal_p, cal_bad = _calibration(ev, m, var, band, cal_groups)
                 parts = [f"{score.upper() if score == 'crps' else score} ratio {ratio:.2f}"]
                 usable = t is not None and bool(t["usable"])
                 if t is not None:
@@ -292,7 +336,7 @@ def decide(evaluation, *, sensitivity=None, since=None, alpha: float = 0.10, sco
                                  else f"n too small for a test (n = {int(t['n'])})")
                 if in_set is not None:
                     cl.append(Claim("best_set", in_set, "band_sets", key))
-                    a = float(st["alpha"].iloc[0])
+                    a = float(st["alpha"])
                     parts.append(f"{'in' if in_set else 'not in'} the {100 * (1 - a):g}% best set")
                 cl.append(Claim("calibration", cal, "calibration", dict(key, horizons_rejected=cal_bad)))
                 parts.append({"fails": f"PIT test rejects calibration at h {', '.join(map(str, cal_bad))}",
@@ -316,7 +360,7 @@ def decide(evaluation, *, sensitivity=None, since=None, alpha: float = 0.10, sco
                             f"{a}: {b}" for a, b in zip(lead["truth"], lead["leader"], strict=True)) + ")")
                 change = None
                 if since is not None:
-                    old, _ = _band_ratio(since.table, m, bench, var, band, score, subperiod)
+                    old, _ = _band_ratio(earlier, m, bench, var, band)
                     if np.isfinite(old):
                         change = ratio - old
                         cl.append(Claim("change", {"earlier": old, "now": ratio}, "since", key))
@@ -329,7 +373,7 @@ def decide(evaluation, *, sensitivity=None, since=None, alpha: float = 0.10, sco
                                  n=int(t["n"]) if t is not None else 0,
                                  test_note=(t["note"] if t is not None else "no test"),
                                  in_best_set=in_set,
-                                 mcs_pvalue=float(st["pvalue"].iloc[0]) if len(st) else math.nan,
+                                 mcs_pvalue=float(st["pvalue"]) if st is not None else math.nan,
                                  calibration=cal, calibration_p=cal_p, beats_every_truth=beats,
                                  leader_stable=stable, change=change, verdict=word,
                                  reasons="; ".join(parts)))

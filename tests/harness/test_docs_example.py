@@ -23,7 +23,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[2]
 EXAMPLE = ROOT / "docs" / "notebook_example.py"
-SECTION = ROOT / "docs" / "use_from_python.md"
+README = ROOT / "README.md"
 
 pytestmark = pytest.mark.slow
 
@@ -177,13 +177,20 @@ def test_report_chart_and_caution_written(example):
     assert str(example["report"].resolve()) in example["printed"]
 
 
+def _section() -> str:
+    """The README's "Use from Python" section (up to the next section)."""
+    text = README.read_text(encoding="utf-8")
+    start = text.index("## Use from Python")
+    return text[start:text.index("\n## ", start + 1)]
+
+
 def _python_blocks(markdown: str) -> list[str]:
     return re.findall(r"^```python\n(.*?)^```", markdown, flags=re.S | re.M)
 
 
 def test_readme_section_code_runs(tmp_path):
     """The code of the README's "Use from Python" section runs as written in an empty folder."""
-    text = SECTION.read_text(encoding="utf-8")
+    text = _section()
     assert len(text.splitlines()) <= 40
     assert "docs/notebook_example.py" in text
     blocks = _python_blocks(text)
@@ -202,7 +209,7 @@ def test_readme_section_code_runs(tmp_path):
 
 def test_import_check_command_names_this_project():
     """The environment check the section prints imports harness and vintages from this checkout."""
-    text = SECTION.read_text(encoding="utf-8")
+    text = _section()
     cmd = re.search(r'python -c "(import harness, vintages; [^"]+)"', text)
     assert cmd, "the section shows the import check"
     env = dict(os.environ, PYTHONPATH=str(ROOT))

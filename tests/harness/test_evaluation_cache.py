@@ -70,3 +70,36 @@ def test_an_entry_without_its_meta_file_is_not_read(evaluated):
         (e / "meta.json").unlink()
     again = evaluate(spec.out, "first")
     assert len(again.table) and all((e / "meta.json").is_file() for e in entries)
+
+
+def test_a_cached_evaluation_keeps_its_column_types(evaluated):
+    """A cache hit returns the same dtypes as a fresh evaluation (datetime units included)."""
+    spec, _ = evaluated
+    hit = evaluate(spec.out, "first")
+    fresh = evaluate(spec.out, "first", cache=False)
+    for name in ("forecasts", "table", "tests", "mcs", "calibration"):
+        a, b = getattr(hit, name), getattr(fresh, name)
+        dt = {c: str(b[c].dtype) for c in b.columns if str(b[c].dtype).startswith("datetime64")}
+        assert {c: str(a[c].dtype) for c in dt} == dt, name
+
+
+def test_the_verdicts_band_tests_are_kept_beside_the_evaluation(evaluated, monkeypatch):
+    """A second decide() on a cached evaluation reads its band tests back (no test is rerun) and
+    gives the same decision table; a different seed is computed afresh."""
+    import importlib
+
+    decide_mod = importlib.import_module("harness.verdicts.decide")
+
+    spec, _ = evaluated
+    ev = evaluate(spec.out, "first")
+    assert ev.cache_key
+    first = decide_mod.decide(ev)
+    calls = []
+    real = decide_mod._band_tests
+    monkeypatch.setattr(decide_mod, "_band_tests", lambda *a, **k: calls.append(1) or real(*a, **k))
+    again = decide_mod.decide(evaluate(spec.out, "first"))
+    assert calls == []
+    _same(first.table.drop(columns="reasons"), again.table.drop(columns="reasons"))
+    assert list(first.table["reasons"]) == list(again.table["reasons"])
+    decide_mod.decide(ev, seed=999)
+    assert calls == [1]
