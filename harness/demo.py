@@ -148,7 +148,7 @@ def demo_spec_text(*, small: bool = False) -> str:
         return DEMO_SPEC.format(draws=400, start="2016-01-01", hmax=4, min_scored=6,
                                 sv_extra="n_iter = 600\nburn = 200\n")
     return DEMO_SPEC.format(draws=2000, start="2006-01-01", hmax=8, min_scored=12,
-                            sv_extra="n_iter = 1000\nburn = 300\nchains = 4\n")
+                            sv_extra="n_iter = 1500\nburn = 300\nchains = 4\n")
 
 
 def nowcast_spec_text(*, small: bool = False) -> str:

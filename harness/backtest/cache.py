@@ -211,10 +211,15 @@ class TaskCache:
         return json.loads(self.failure_path(key).read_text())
 
     # ------------------------------------------------------------------ registrations
-    def register(self, run_dir: Path, *, keys=(), plans=(), cubes=()) -> Path:
-        """Record the entries ``run_dir`` uses (replacing its previous registration)."""
+    def register(self, run_dir: Path, *, keys=(), plans=(), cubes=(), pools=()) -> Path:
+        """Record the entries ``run_dir`` uses (replacing its previous registration).
+
+        ``keys``: task keys, the models' and the pools' per-origin tasks alike; ``pools``: the
+        pools' keys (their weights and meta files under ``pools/``).
+        """
         rec = {"format": FORMAT, "run_dir": str(Path(run_dir).resolve()), "written": time.strftime("%Y-%m-%dT%H:%M:%S"),
-               "keys": sorted(set(keys)), "plans": sorted(set(plans)), "cubes": sorted(set(cubes))}
+               "keys": sorted(set(keys)), "plans": sorted(set(plans)), "cubes": sorted(set(cubes)),
+               "pools": sorted(set(pools))}
         path = self.registration_path(run_dir)
         _atomic_write(path, json.dumps(rec).encode())
         return path
@@ -290,12 +295,14 @@ class TaskCache:
             live_keys: set[str] = set()
             live_plans: set[str] = set()
             live_cubes: set[str] = set()
+            live_pools: set[str] = set()
             live_dirs = []
             for path, rec in self.registrations():
                 if self._is_live(rec):
                     live_keys.update(rec.get("keys", ()))
                     live_plans.update(rec.get("plans", ()))
                     live_cubes.update(rec.get("cubes", ()))
+                    live_pools.update(rec.get("pools", ()))
                     live_dirs.append(Path(rec["run_dir"]))
                     res.live_runs.append(rec["run_dir"])
                 else:
@@ -313,6 +320,8 @@ class TaskCache:
                 elif rel.parts[0] == "plans" and f.suffix == ".pkl" and f.stem not in live_plans:
                     res.removable.append((str(rel), _size(f)))
                 elif rel.parts[0] == "cubes" and f.suffix == ".npz" and f.stem not in live_cubes:
+                    res.removable.append((str(rel), _size(f)))
+                elif rel.parts[0] == "pools" and f.suffix in (".parquet", ".json") and f.stem not in live_pools:
                     res.removable.append((str(rel), _size(f)))
             for run_dir in live_dirs:
                 try:
@@ -333,7 +342,7 @@ class TaskCache:
         return res
 
     def _walk(self) -> Iterator[Path]:
-        for sub in ("tasks", "plans", "cubes", "runs", "."):
+        for sub in ("tasks", "plans", "cubes", "pools", "runs", "."):
             d = self.root / sub
             if not d.is_dir():
                 continue
@@ -357,8 +366,8 @@ class TaskCache:
 
     def info(self) -> dict:
         """Counts and sizes of the entries, and the registered run directories."""
-        out = {"cache": str(self.root), "tasks": 0, "failures": 0, "plans": 0, "cubes": 0, "bytes": 0,
-               "runs": [], "gone": []}
+        out = {"cache": str(self.root), "tasks": 0, "failures": 0, "plans": 0, "cubes": 0, "pools": 0,
+               "bytes": 0, "runs": [], "gone": []}
         for f in self._walk():
             out["bytes"] += _size(f)
             rel = f.relative_to(self.root)
@@ -368,6 +377,8 @@ class TaskCache:
                 out["failures" if f.name.endswith(".fail.json") else "tasks"] += 1
             elif rel.parts[0] in ("plans", "cubes"):
                 out[rel.parts[0]] += 1
+            elif rel.parts[0] == "pools" and f.suffix == ".json":
+                out["pools"] += 1
         for _, rec in self.registrations():
             (out["runs"] if self._is_live(rec) else out["gone"]).append((rec or {}).get("run_dir", "?"))
         return out

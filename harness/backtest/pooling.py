@@ -28,6 +28,8 @@ class PoolOutcome:
     weights: pd.DataFrame | None = None
     warnings: list[dict] = field(default_factory=list)
     timings: dict[str, float] = field(default_factory=dict)
+    #: each pool's key (its weights and meta files in the cache's ``pools/``)
+    pool_keys: list[str] = field(default_factory=list)
 
 
 def _member_draws(plan, cache, members: list[str]) -> np.ndarray:
@@ -109,6 +111,7 @@ def compute_pools(plan, cache, records: dict[str, dict]) -> PoolOutcome:
         truths = _truth_table(plan, pool.truth)
         pkey = _pool_key(spec, pool, mkeys, truths)
         okeys = [hashlib.sha256(f"{pkey}:{o}".encode()).hexdigest()[:32] for o in plan.origins]
+        out.pool_keys.append(pkey)
         weights_path = cache.root / "pools" / f"{pkey}.parquet"
         meta_path = cache.root / "pools" / f"{pkey}.json"
         cached = weights_path.is_file() and meta_path.is_file() and all(cache.has(k) for k in okeys)

@@ -67,8 +67,16 @@ class RunResult:
 
     @property
     def warnings(self) -> tuple[str, ...]:
-        """Messages of the diagnostic checks (see :mod:`harness.backtest.diagnostics`)."""
-        return tuple(self.manifest.diagnostic_warnings)
+        """Messages of the diagnostic checks (see :mod:`harness.backtest.diagnostics`) and one line
+        per pool that used its documented fallback (the records are in ``run.json``)."""
+        out = list(self.manifest.diagnostic_warnings)
+        by_pool: dict[str, list[dict]] = {}
+        for w in self.manifest.pool_warnings or ():
+            by_pool.setdefault(str(w.get("pool", "pool")), []).append(w)
+        for name, ws in by_pool.items():
+            out.append(f"{name}: fallback used in {len(ws)} cell(s) (origin × variable × horizon); first: "
+                       f"{ws[0].get('message', '')} (all in {self.run_dir / 'run.json'}, pool_warnings)")
+        return tuple(out)
 
     def summary(self) -> str:
         from harness.ui.progress import run_summary
@@ -244,6 +252,9 @@ def _run_locked(spec: Spec, plan: Plan, cache: TaskCache, *, given_plan: bool, t
         from harness.backtest.pooling import compute_pools
 
         pools = compute_pools(plan, cache, records)
+        # the pools' tasks and weights are this run's entries too ('cache clean' keeps them)
+        cache.register(out, keys=[t.key for t in plan.tasks] + [r["key"] for r in pools.records],
+                       pools=pools.pool_keys, **plan.cache_entries)
     t_assemble = time.perf_counter()
     ordered = [records[t.key] for t in plan.tasks] + (pools.records if pools else [])
     donors = [] if previous is not None and previous.ledger_digest == ledger_digest(ordered) else \

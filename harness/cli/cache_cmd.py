@@ -58,7 +58,7 @@ def info_cmd(cache: CacheOpt = None, spec: SpecOpt = None, store: StoreOpt = Non
         return
     i = TaskCache(root).info()
     typer.echo(f"cache {root}: {i['tasks']} task results, {i['failures']} failures, {i['plans']} plans, "
-               f"{i['cubes']} release indexes; {i['bytes'] / 1e6:.1f} MB")
+               f"{i['cubes']} release indexes, {i['pools']} pool weights; {i['bytes'] / 1e6:.1f} MB")
     for r in i["runs"]:
         typer.echo(f"  used by {r}")
     for r in i["gone"]:

@@ -10,13 +10,18 @@ so a killed evaluation leaves no entry that could be read.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
+import os
+import time
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
+#: entries kept per run directory: the most recently used (a new entry beyond it drops the oldest)
+KEEP = 8
 _TABLES = ("forecasts", "table", "relative", "tests", "mcs", "calibration", "fluctuation", "turning_points")
 _CODE: dict[str, str] = {}
 #: bumped when the layout of a cache entry changes
@@ -66,6 +71,8 @@ def load(run_dir: Path, key: str, manifest):
         frames = {n: pd.read_parquet(d / f"{n}.parquet") for n in _TABLES}
     except (OSError, ValueError):
         return None  # a damaged entry is recomputed
+    with contextlib.suppress(OSError):
+        os.utime(meta_path)  # most recently used: kept by _prune
     for name, kinds in (meta.get("datetime_units") or {}).items():  # the units the evaluation had
         for c, unit in kinds.items():
             if c in frames[name]:
@@ -127,6 +134,23 @@ def store(run_dir: Path, key: str, ev) -> None:
                         "freq": (reg.index.freqstr or "Q")[:1]},
             "turning_points_freq": freq or "Q", "datetime_units": units}
     atomic_write_bytes(d / "meta.json", (json.dumps(meta) + "\n").encode())
+    _prune(Path(run_dir), keep=KEEP)
+
+
+def _prune(run_dir: Path, keep: int) -> None:
+    """Remove all but the ``keep`` most recently used entries (stale keys: older code, old stores)."""
+    import shutil
+
+    root = Path(run_dir) / ".evaluations"
+    entries = []
+    for d in root.iterdir() if root.is_dir() else ():
+        m = d / "meta.json"
+        if d.is_dir() and m.is_file():
+            entries.append((m.stat().st_mtime, d))
+        elif d.is_dir() and time.time() - d.stat().st_mtime > 3600:
+            entries.append((0.0, d))  # an entry whose write was interrupted an hour ago or more
+    for _, d in sorted(entries, reverse=True)[keep:]:
+        shutil.rmtree(d, ignore_errors=True)
 
 
 def load_extra(run_dir: Path, key: str, name: str, tables: tuple[str, ...]) -> dict | None:

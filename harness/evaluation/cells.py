@@ -346,7 +346,7 @@ def calibration_tests(fc: pd.DataFrame, *, seed: int,
 
     Columns: ``n`` (PIT values), per coverage column ``<col>_rate`` and ``<col>_<test>_p``, per
     PIT test ``<short>_p`` (``berkowitz_p``, ``rs_p``, ``rs_cvm_p``, ``knuppel_p``), and
-    ``pit_hist`` (counts in ten bins, ';'-joined). The p-values are those of
+    ``pit_bin_1`` … ``pit_bin_10`` (integer counts of the PIT values in ten equal bins). The p-values are those of
     :func:`calibration_results` (NaN where a test does not apply, e.g. Berkowitz at h > 1, or
     has too few observations; the long frame says why).
     """
@@ -370,7 +370,8 @@ def calibration_tests(fc: pd.DataFrame, *, seed: int,
             row[key] = r.pvalue
             if r.test == "rossi_sekhposyan":
                 row["rs_cvm_p"] = r.cvm_pvalue
-        row["pit_hist"] = ";".join(str(int(x)) for x in pit_histogram(pit, bins=10))
+        for k, count in enumerate(pit_histogram(pit, bins=10), start=1):
+            row[f"pit_bin_{k}"] = int(count)
         rows.append(row)
     return pd.DataFrame(rows)
 

@@ -103,3 +103,27 @@ def test_the_verdicts_band_tests_are_kept_beside_the_evaluation(evaluated, monke
     assert list(first.table["reasons"]) == list(again.table["reasons"])
     decide_mod.decide(ev, seed=999)
     assert calls == [1]
+
+
+def test_the_cache_keeps_the_most_recently_used_entries(evaluated, monkeypatch):
+    """Beyond KEEP entries the least recently used is removed; reading an entry keeps it."""
+    import os
+    import time
+
+    from harness.evaluation import cache as ecache
+
+    spec, _ = evaluated
+    monkeypatch.setattr(ecache, "KEEP", 2)
+    root = spec.out / ".evaluations"
+    evaluate(spec.out, "latest")
+    first = {d.name for d in root.iterdir()}
+    assert len(first) == 2
+    old = time.time() - 100
+    for d in root.iterdir():  # age both, then use 'first' again: it becomes the most recent
+        os.utime(d / "meta.json", (old, old))
+    evaluate(spec.out, "first")
+    evaluate(spec.out, "first", benchmark="ar")  # a third entry: the least recent ('latest') goes
+    left = {d.name for d in root.iterdir()}
+    assert len(left) == 2
+    kept = evaluate(spec.out, "first")
+    assert kept.cache_key in left

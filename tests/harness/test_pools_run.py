@@ -59,3 +59,14 @@ def test_bad_pools_are_refused_when_the_spec_is_read(tmp_path, small_store, extr
     """A pool naming an unknown model, a pool of one, a non-real-time truth, a clash: one-line spec error."""
     with pytest.raises(SpecError, match=needle.replace("[", r"\[").replace("]", r"\]")):
         load_spec(_spec(tmp_path, small_store, extra))
+
+
+def test_a_pool_that_never_leaves_its_fallback_is_named_in_the_summary(tmp_path, small_store):
+    """A truth that is never published in the sample (lag:20000D) leaves the optimal pool on equal
+    weights throughout; the run's summary says so, per pool, beside the records in run.json."""
+    extra = '[pools.late]\nscheme = "optimal"\nmin_scored = 4\ntruth = "lag:20000D"\n'
+    res = run(load_spec(_spec(tmp_path, small_store, extra)), jobs=1, progress=False)
+    assert res.manifest.pool_warnings
+    lines = [w for w in res.warnings if w.startswith("late:")]
+    assert len(lines) == 1 and f"in {len(res.manifest.pool_warnings)} cell(s)" in lines[0]
+    assert "warning: late: fallback used" in res.summary()

@@ -131,6 +131,27 @@ def test_clean_removes_only_what_no_run_uses(tmp_path, small_store):
     assert again.computed == 0 and read_ledger(again.run_dir).draws.shape[0] == 2
 
 
+def test_clean_keeps_a_live_runs_pools_and_drops_a_deleted_runs(tmp_path, small_store):
+    """A pool's per-origin tasks and weights are the run's entries: 'clean' keeps them while the run
+    directory exists (a rerun reads every pool back) and removes them once it is gone."""
+    pool = '[pools.eq]\nscheme = "equal"\nmembers = ["rw", "ar"]\n'
+    keep = run(_spec(tmp_path, small_store, "keep", pool), jobs=1, progress=False)
+    gone = run(_spec(tmp_path, small_store, "gone", pool.replace('"ar"]', '"ar"]\nwindow = 4\n')
+                     .replace('"equal"', '"inverse_score"') + "min_scored = 2\n"), jobs=1, progress=False)
+    cache = TaskCache(keep.manifest.cache)
+    pool_tasks = [t["key"] for t in keep.manifest.tasks if t["model"] == "eq"]
+    assert pool_tasks and all(cache.has(k) for k in pool_tasks)
+    assert not [rel for rel, _ in cache.clean().removable if not rel.startswith("runs")]
+    weights = sorted((cache.root / "pools").glob("*.json"))
+    assert len(weights) == 2
+    shutil.rmtree(gone.run_dir)
+    res = cache.clean(apply=True)
+    assert sum(rel.startswith("pools") for rel in res.removed) == 2  # the gone pool's weights and meta
+    assert all(cache.has(k) for k in pool_tasks) and len(list((cache.root / "pools").glob("*.json"))) == 1
+    again = run(_spec(tmp_path, small_store, "keep", pool), jobs=1, progress=False)
+    assert again.computed == 0
+
+
 def test_clean_waits_for_no_run(tmp_path, small_store):
     """While a run holds the cache's shared lock, clean refuses at once (and the CLI exits 3)."""
     s = _spec(tmp_path, small_store)

@@ -175,8 +175,11 @@ def test_calibration_results_apply_the_rules_per_horizon():
     assert 0 <= h0.loc[("ar", "berkowitz"), "pvalue"] <= 1
     wide = cells.calibration_tests(fc, seed=3)
     for c in ("berkowitz_p", "rs_p", "rs_cvm_p", "knuppel_p", "cover_70_kupiec_p", "cover_70_coverage_t_p",
-              "cover_70_rate", "pit_hist"):
+              "cover_70_rate", *(f"pit_bin_{k}" for k in range(1, 11))):
         assert c in wide, c
+    # typed counts that add up to the PIT values of each cell
+    bins = wide[[f"pit_bin_{k}" for k in range(1, 11)]]
+    assert all(str(t).startswith("int") for t in bins.dtypes) and (bins.sum(axis=1) == wide["n"]).all()
     assert wide.loc[wide["horizon"] == 3, "berkowitz_p"].isna().all()
 
 
