@@ -158,7 +158,7 @@ def nowcast_spec_text(*, small: bool = False) -> str:
 
 def write_demo_data(out: Path, *, small: bool = False) -> Path:
     """Write ``out/store``, ``out/chronology.csv`` and ``out/spec.toml``; return the spec path."""
-    from vintages import build_demo_store, simulate_demo, write_demo_chronology
+    from vintages import atomic_write_bytes, build_demo_store, simulate_demo, write_demo_chronology
 
     out = Path(out)
     if (out / "store").exists():
@@ -167,8 +167,8 @@ def write_demo_data(out: Path, *, small: bool = False) -> Path:
     data = simulate_demo()
     build_demo_store(out / "store", data=data)
     write_demo_chronology(out / "chronology.csv")
-    (out / "spec.toml").write_text(demo_spec_text(small=small))
-    (out / "nowcast.toml").write_text(nowcast_spec_text(small=small))
+    atomic_write_bytes(out / "spec.toml", demo_spec_text(small=small).encode())
+    atomic_write_bytes(out / "nowcast.toml", nowcast_spec_text(small=small).encode())
     return out / "spec.toml"
 
 

@@ -308,13 +308,21 @@ def asof_cmd(
 def export_cmd(
     store: StoreArg,
     out: Annotated[Path, typer.Argument(help="Output file (written atomically: never left half-written).")],
-    fmt: Annotated[ExportFormat, typer.Option("--format", help="csv or parquet long table.")] = ExportFormat.csv,
+    fmt: Annotated[ExportFormat | None, typer.Option("--format", help="csv or parquet long table (default: from "
+                                                     "the file's suffix, .csv or .parquet).")] = None,
     superseded: Annotated[bool, typer.Option("--with-superseded", help="Include superseded values (audit).")] = False,
 ) -> None:
     """Export the whole release log as a long table (variable, period, release, value, batch)."""
     from vintages import VintageStore
 
-    n = VintageStore(store).export(out, fmt=fmt.value, with_superseded=superseded)
+    by_suffix = {".csv": "csv", ".parquet": "parquet", ".pq": "parquet"}.get(out.suffix.lower())
+    if out.is_dir():  # refused by the store's writer as a data error, naming the folder
+        by_suffix = fmt.value if fmt is not None else "csv"
+    elif by_suffix is None:
+        fail(f"{out}: unknown suffix {out.suffix!r}; the export is a .csv or .parquet file", code=USAGE_ERROR)
+    if fmt is not None and fmt.value != by_suffix:
+        fail(f"{out}: --format {fmt.value} does not match the file's suffix {out.suffix!r}", code=USAGE_ERROR)
+    n = VintageStore(store).export(out, fmt=by_suffix, with_superseded=superseded)
     typer.echo(f"wrote {n} rows to {out}")
 
 

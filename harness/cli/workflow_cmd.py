@@ -249,24 +249,29 @@ def news_cmd(
     horizon: Annotated[int, typer.Option(help="Horizon relative to the later origin's quarter (0 = nowcast).")] = 0,
     origins: Annotated[tuple[str, str] | None, typer.Option(help="Two origins of the run, earlier first "
                                                           "(default the last two).")] = None,
-    fmt: Annotated[str, typer.Option("--format", help="text or csv.")] = "text",
+    fmt: Annotated[str | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
+    out: Annotated[Path | None, typer.Option(help="Write the table to this file instead of the terminal.")] = None,
 ) -> None:
     """Which release moved the forecast: split its change between two origins into news, revisions and re-estimation."""
-    from harness.cli._common import USAGE_ERROR, fail
-
-    if fmt not in ("text", "csv"):
-        fail(f"unknown format {fmt!r}; expected one of csv, text", code=USAGE_ERROR)
+    f = _fmt(fmt, out)
     from harness.evaluation.news import news_for_run
     from harness.models.news import news_table
+    from harness.report.textout import emit, frame_table
 
     frame = news_for_run(run_dir, model=model, target=target, horizon=horizon,
                          origins=tuple(origins) if origins else None)
-    if fmt == "csv":
-        import sys
+    if f == "text":  # the readable decomposition: contributions by variable, then the total
+        text = news_table(frame) + "\n"
+        if out is None:
+            typer.echo(text, nl=False)
+        else:
+            from vintages import atomic_write_bytes
 
-        sys.stdout.write(frame.to_csv(index=False))
-    else:
-        typer.echo(news_table(frame))
+            atomic_write_bytes(out, text.encode("utf-8"))
+        return
+    a = frame.attrs
+    emit([frame_table(frame.reset_index(drop=True), f"News decomposition: {a.get('model', '')}, "
+                      f"{a.get('target', '')}, {a.get('origin_old', '')} to {a.get('origin_new', '')}")], f, out)
 
 
 def register(app: typer.Typer) -> None:

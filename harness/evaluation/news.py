@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from harness.errors import UnknownNameError
+from harness.errors import OptionError, UnknownNameError
 
 #: model types whose forecasts the decomposition covers (linear-Gaussian given parameters)
 NEWS_MODELS: tuple[str, ...] = ("dfm", "bvar")
@@ -62,7 +62,7 @@ def news_for_run(run_dir: str | Path, *, model: str | None = None, target: str |
     man = RunManifest.read(run_dir)
     covered = news_models(man)
     if not covered:
-        raise ValueError(f"{run_dir}: no model of the run has a news decomposition (types "
+        raise OptionError(f"{run_dir}: no model of the run has a news decomposition (types "
                          f"{list(NEWS_MODELS)}); models: {list(man.models)}")
     model = model or covered[0]
     if model not in covered:
@@ -78,9 +78,9 @@ def news_for_run(run_dir: str | Path, *, model: str | None = None, target: str |
     old, new = (str(pd.Timestamp(o).date()) for o in origins)
     for o in (old, new):
         if o not in run_origins:
-            raise ValueError(f"origin {o} is not an origin of the run ({run_origins[0]} … {run_origins[-1]})")
+            raise UnknownNameError(f"origin {o} is not an origin of the run ({run_origins[0]} … {run_origins[-1]})")
     if old >= new:
-        raise ValueError(f"origins must be in time order, earlier first; got {old} and {new}")
+        raise OptionError(f"origins must be in time order, earlier first; got {old} and {new}")
     ms = man.model_specs[model]
     cls = get_model_class(ms["type"])
     instance = cls(**ms.get("params", {}))

@@ -47,7 +47,7 @@ def save(ev: Evaluation, path: str | Path) -> Path:
         frame = getattr(ev, name)
         write_csv(frame, path / f"{name}.csv")
         atomic_write_bytes(path / f"{name}.parquet", _plain(frame).to_parquet(index=False))
-    (path / "evaluation.json").write_text(json.dumps({"truth": ev.truth, "benchmark": ev.benchmark,
-                                                      "chronology": ev.chronology_source,
-                                                      "subperiods": ev.subperiod_names}, indent=1) + "\n")
+    atomic_write_bytes(path / "evaluation.json",
+                       (json.dumps({"truth": ev.truth, "benchmark": ev.benchmark, "chronology": ev.chronology_source,
+                                    "subperiods": ev.subperiod_names}, indent=1) + "\n").encode())
     return path

@@ -134,7 +134,7 @@ class Sensitivity:
                             (self.verdicts, "sensitivity_verdicts")):
             write_csv(frame, path / f"{stem}.csv")  # for people (spreadsheet-safe)
             atomic_write_bytes(path / f"{stem}.parquet", frame.to_parquet(index=False))  # read back typed
-        (path / "sensitivity.txt").write_text(self.summary() + "\n")
+        atomic_write_bytes(path / "sensitivity.txt", (self.summary() + "\n").encode("utf-8"))
         return path
 
 

@@ -39,6 +39,7 @@ from harness.report.escape import (
     fmt_number,
     fmt_p,
 )
+from vintages import atomic_write_bytes
 
 
 @dataclass
@@ -477,10 +478,10 @@ def _write_all(table, directory: Path) -> dict[str, Path]:
     out = {}
     for ext, text in (("md", table.to_markdown()), ("tex", table.to_latex())):
         p = directory / f"{table.name}.{ext}"
-        p.write_text(text, encoding="utf-8")
+        atomic_write_bytes(p, text.encode("utf-8"))
         out[f"{table.name}.{ext}"] = p
     p = directory / f"{table.name}.csv"
-    csv_safe(table.to_frame()).to_csv(p, index=False)
+    atomic_write_bytes(p, csv_safe(table.to_frame()).to_csv(index=False).encode("utf-8"))
     out[f"{table.name}.csv"] = p
     return out
 

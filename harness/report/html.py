@@ -28,6 +28,7 @@ from harness.report.escape import escape_html, escape_markdown, slug
 from harness.report.inputs import Extras
 from harness.report.labels import CAUTION, CAUTION_SHORT
 from harness.report.sections import SECTIONS, ReportContext, _variables, manifest_value
+from vintages import atomic_write_bytes
 
 _TEMPLATE_DIR = Path(__file__).with_name("templates")
 
@@ -77,7 +78,7 @@ class ReportWriter:
         name = self.names(slug(stem))
         self.fig_dir.mkdir(parents=True, exist_ok=True)
         p = self.fig_dir / f"{name}.png"
-        p.write_bytes(png)
+        atomic_write_bytes(p, png)
         self.paths[f"figures/{name}.png"] = p
         self.markdown.append(f"![{escape_markdown(caption)}](figures/{name}.png)\n")
         b64 = base64.b64encode(png).decode("ascii")
@@ -189,7 +190,7 @@ def build_report(evaluation, out_dir, *, sensitivity=None, ledger=None, fan_trut
             sections="\n".join(_section(sid, t, body) for sid, t, body in built[page]))
         _check_self_contained(text, fname)
         p = out / fname
-        p.write_text(text, encoding="utf-8")
+        atomic_write_bytes(p, text.encode("utf-8"))
         pages[fname] = p
-    (out / "report.md").write_text("\n".join(md) + "\n", encoding="utf-8")
+    atomic_write_bytes(out / "report.md", ("\n".join(md) + "\n").encode("utf-8"))
     return {**pages, "report.md": out / "report.md", **rep.paths}

@@ -136,13 +136,16 @@ def gather_extras(run_dir, manifest, *, news: bool = True, log=None) -> Extras:
         if not covered:
             ex.notes["news"] = "no model of the run has a news decomposition (types dfm, bvar)"
         else:
-            for a, b in news_pairs(manifest.origins):
-                for t in targets:
-                    say(f"news {covered[0]} {t} {a} → {b}")
-                    try:
-                        ex.news.append(news_for_run(run_dir, model=covered[0], target=t, horizon=0, origins=(a, b)))
-                    except (OSError, ValueError, KeyError, RuntimeError, ArithmeticError) as exc:
-                        ex.notes["news"] = f"news decomposition failed ({str(exc).splitlines()[0]})"
+            # every model with a decomposition (the factor model and the BVAR answer the same
+            # question differently; the meeting sees both)
+            for model in covered:
+                for a, b in news_pairs(manifest.origins):
+                    for t in targets:
+                        say(f"news {model} {t} {a} → {b}")
+                        try:
+                            ex.news.append(news_for_run(run_dir, model=model, target=t, horizon=0, origins=(a, b)))
+                        except (OSError, ValueError, KeyError, RuntimeError, ArithmeticError) as exc:
+                            ex.notes["news"] = f"news decomposition failed ({str(exc).splitlines()[0]})"
     try:
         ex.pool_weights = read_pool_weights(run_dir, manifest)
         ex.diagnostics = read_diagnostics(run_dir, manifest)

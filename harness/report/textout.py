@@ -38,7 +38,11 @@ def resolve_format(fmt: str | None, out: Path | None) -> str:
     FormatError
         An unknown format, or Parquet without a file.
     """
-    f = (fmt or "").strip().lower() or (_SUFFIX.get(Path(out).suffix.lower(), "text") if out else "text")
+    suffix = Path(out).suffix.lower() if out else ""
+    if not (fmt or "").strip() and suffix and suffix not in _SUFFIX:
+        raise FormatError(f"--out {out}: unknown suffix {suffix!r}; use one of "
+                          f"{', '.join(sorted(_SUFFIX))} or name the format with --format")
+    f = (fmt or "").strip().lower() or (_SUFFIX.get(suffix, "text") if out else "text")
     f = "text" if f == "table" else f
     if f not in FORMATS:
         raise FormatError(f"unknown format {fmt!r}; expected one of {', '.join(sorted(FORMATS))}")
@@ -100,15 +104,12 @@ def render(tables, fmt: str, *, caution: bool = True, extra_lines=()) -> str:
 
 
 def _atomic_write(path: Path, data: bytes) -> None:
+    """The project's one atomic write (temporary file, fsync, rename), creating the folder."""
+    from vintages import atomic_write_bytes
+
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.tmp")
-    try:
-        tmp.write_bytes(data)
-        tmp.replace(path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+    atomic_write_bytes(path, data)
 
 
 def emit(tables, fmt: str | None = None, out: Path | None = None, *, stdout=None, stderr=None,

@@ -54,6 +54,15 @@ def _code(*args) -> tuple[int, str]:
     (("vintages", "revisions", "{store}", "gdp", "--transform", "bogus"), USAGE_ERROR),
     (("vintages", "revisions", "{store}", "nosuch"), USAGE_ERROR),
     (("ledger", "export", "{run}", "--out", "{tmp}/x.xlsx"), USAGE_ERROR),
+    (("score", "{run}", "--out", "{tmp}/x.xlsx"), USAGE_ERROR),
+    (("vintages", "export", "{store}", "{tmp}/x.xlsx"), USAGE_ERROR),
+    (("vintages", "export", "{store}", "{tmp}/x.csv", "--format", "parquet"), USAGE_ERROR),
+    (("vintages", "asof", "{store}", "2014-01-01", "--out", "{tmp}/x.xlsx"), USAGE_ERROR),
+    (("vintages", "describe", "{store}", "nosuch", "--units", "x"), USAGE_ERROR),
+    (("vintages", "describe", "{store}", "gdp"), USAGE_ERROR),
+    (("news", "{run}"), USAGE_ERROR),  # no model of this run has a news decomposition
+    (("cache", "info"), USAGE_ERROR),  # which cache? none named
+    (("demo", "--jobs", "0"), USAGE_ERROR),
     (("run", "{tmp}/missing.toml"), USAGE_ERROR),
     (("score", "{run}", "--no-such-option"), USAGE_ERROR),
     (("no-such-command",), USAGE_ERROR),
@@ -61,17 +70,40 @@ def _code(*args) -> tuple[int, str]:
     (("score", "{tmp}/not-a-run"), DATA_ERROR),
     (("vintages", "info", "{tmp}/not-a-store"), DATA_ERROR),
     (("vintages", "ingest", "{tmp}/not-a-store", "{tmp}/missing.csv"), DATA_ERROR),
+    (("vintages", "verify", "{tmp}/not-a-store"), DATA_ERROR),
+    (("vintages", "cleanup", "{tmp}/not-a-store"), DATA_ERROR),
+    (("ledger", "export", "{tmp}/not-a-run", "--out", "{tmp}/q.parquet"), DATA_ERROR),
+    (("report", "{tmp}/not-a-run"), DATA_ERROR),
+    (("vintages", "info", "{store}"), 0),
+    (("vintages", "verify", "{store}"), 0),
+    (("vintages", "export", "{store}", "{tmp}/all.parquet"), 0),
+    (("ledger", "export", "{run}", "--out", "{tmp}/q.parquet"), 0),
 ])
 def test_each_command_exits_with_the_documented_code(done, tmp_path, args, code):
     spec, store = done
     args = [a.format(run=spec.out, store=store, tmp=tmp_path) for a in args]
     got, out = _code(*args)
     assert got == code, (args, out)
-    if code in (DATA_ERROR, USAGE_ERROR) and args[0] != "no-such-command" and "--no-such-option" not in args:
+    if code in (DATA_ERROR, USAGE_ERROR) and not out.startswith("Usage:"):
         # one error line on stderr, the last thing printed (stage lines may precede it);
         # typer's own usage errors have their own form
         lines = out.strip().splitlines()
         assert lines[-1].startswith("error:") and sum(x.startswith("error:") for x in lines) == 1, out
+
+
+def test_a_bad_file_and_a_bad_spec(tmp_path, small_store):
+    """An ingest of a malformed file is a data error (1), naming file, line and field; a spec
+    with a bad value is refused by 'run --explain' as a spec error (2), naming file and key."""
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    bad = tmp_path / "bad.csv"
+    bad.write_text("variable,period,release,value\ngdp,2016Q1,2016-05-15,abc\n")
+    got, out = _code("vintages", "ingest", store, bad)
+    assert got == DATA_ERROR and "bad.csv" in out and "line 2" in out and "value" in out, out
+    spec = write_spec(tmp_path, small_store, tmp_path / "run")
+    spec.write_text(spec.read_text().replace("draws = 50", "draws = -5"))
+    got, out = _code("run", spec, "--explain")
+    assert got == USAGE_ERROR and "spec.toml" in out and "draws" in out, out
 
 
 def test_a_run_with_failed_tasks_exits_4(tmp_path, small_store):

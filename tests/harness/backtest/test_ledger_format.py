@@ -133,3 +133,23 @@ def test_ledger_and_manifest_layout_must_agree(done, tmp_path):
     (d / "run.json").write_text(json.dumps(raw))
     with pytest.raises(RunError, match=r"stores draws as int32 but .*run\.json says layout 'joint'"):
         read_ledger(d)
+
+
+def test_a_ledger_whose_bytes_do_not_match_its_name_is_refused(done, tmp_path):
+    """Other forecasts copied under the ledger's content-addressed name (same rows, same models,
+    other draws: what another run's ledger would be) are refused on read, naming the file."""
+    from harness.errors import RunError
+
+    d = tmp_path / "copy"
+    shutil.copytree(done.out, d)
+    name = RunManifest.read(d).ledger
+    t = pq.read_table(d / name)
+    keys = t.column("draws").combine_chunks()
+    flat = keys.flatten().to_numpy(zero_copy_only=False).copy()
+    flat[0] += 1  # one draw of one forecast differs
+    t = t.set_column(t.column_names.index("draws"), "draws",
+                     pa.FixedSizeListArray.from_arrays(pa.array(flat, pa.int32()), keys.type.list_size))
+    pq.write_table(t, d / name)
+    with pytest.raises(RunError, match=r"its content does not match its name"):
+        read_ledger(d)
+    assert read_ledger(done.out).draws.shape[0] == 2  # the original still reads
