@@ -146,7 +146,7 @@ def demo_spec_text(*, small: bool = False) -> str:
     """The demo spec; ``small`` gives a reduced run (fewer origins and draws)."""
     if small:
         return DEMO_SPEC.format(draws=400, start="2016-01-01", hmax=4, min_scored=6,
-                                sv_extra="n_iter = 600\nburn = 200\n")
+                                sv_extra="n_iter = 1500\nburn = 300\nchains = 4\n")
     return DEMO_SPEC.format(draws=2000, start="2006-01-01", hmax=8, min_scored=12,
                             sv_extra="n_iter = 1500\nburn = 300\nchains = 4\n")
 

@@ -100,6 +100,7 @@ class TableChoice(str, Enum):
     all = "all"
     decision = "decision"
     scores = "scores"
+    matrix = "matrix"
 
 
 @friendly
@@ -114,8 +115,9 @@ def score_cmd(
                                                         "recession, expansion or a name of \\[scoring.subperiods]; "
                                                         "default full.")] = None,
     table: Annotated[TableChoice, typer.Option(help="What to show: all (the decision view and one score table per "
-                                               "target), decision or scores. CSV and Parquet hold one table: "
-                                               "scores unless --table decision.")] = TableChoice.all,
+                                               "target), decision, scores, or matrix (every model against every "
+                                               "other, per horizon, and the model confidence set). CSV and Parquet "
+                                               "hold one table: scores unless --table decision or matrix.")] = TableChoice.all,
     fmt: Annotated[str | None, typer.Option("--format", help=_FORMAT_HELP)] = None,
     out: Annotated[Path | None, typer.Option(help="Write the tables to this file instead of the terminal.")] = None,
     save_scores: Annotated[Path | None, typer.Option("--save-scores", help="Also write every per-forecast score "
@@ -158,6 +160,15 @@ def score_cmd(
         if f not in ("csv", "parquet"):
             tables.append(Lines(score_header(ev, score)))
         tables += score_tables(ev, score, subs)
+    if table is TableChoice.matrix:
+        from harness.report.builders import mcs_table
+        from harness.report.matrix import pairwise_tables
+        from harness.report.sections import _variables
+
+        with ui.stage("pairwise tests among all models"):
+            tables += pairwise_tables(ev, score=score, variables=_variables(ev))
+        if f not in ("csv", "parquet"):
+            tables.append(mcs_table(ev, _variables(ev)))
     lines = []
     if f in ("text", "md"):
         lines = [f"sub-periods: recession/expansion from {ev.chronology_source}"]
@@ -167,6 +178,8 @@ def score_cmd(
                 for _, r in ev.turning_points.iterrows()))
         if len(ev.missing):
             lines.append(f"{len(ev.missing)} target periods have no truth yet under '{ev.truth}' (not scored).")
+        if table is TableChoice.all:
+            lines.append("every model against every other, and the model confidence set: --table matrix")
     _, written = emit(tables, f, out, extra_lines=lines)
     if written is not None:
         ui.log(f"wrote {written}")

@@ -99,10 +99,23 @@ def _pvalues(evaluation) -> dict:
     # lists, not pandas columns: iterating Arrow-backed text columns element by element is slow
     keys = zip(t["model"].tolist(), t["variable"].tolist(), t["horizon"].astype(int).tolist(),
                t["subperiod"].tolist(), t["score"].tolist(), strict=True)
+    keys = list(keys)
     pv = dict(zip(keys, t["pvalue"].to_numpy(dtype=float).tolist(), strict=True))
+    notes = t["note"].astype(str).tolist() if "note" in t else [""] * len(keys)
+    small = {k for k, note in zip(keys, notes, strict=True) if note.startswith("n too small")}
     _PV_CACHE.clear()
-    _PV_CACHE.update(tests=t, pv=pv)
+    _PV_CACHE.update(tests=t, pv=pv, small=small)
     return pv
+
+
+def _too_small(evaluation) -> set:
+    """Keys of :func:`_pvalues` whose test was not run: fewer forecasts than its minimum-sample rule."""
+    _pvalues(evaluation)
+    return _PV_CACHE.get("small", set()) if _PV_CACHE.get("tests") is evaluation.tests else set()
+
+
+def _note(small: set, key) -> str:
+    return "n too small" if key in small else ""
 
 
 def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, prefix: str = "relative",
@@ -145,6 +158,7 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
     names += [s for s in present if s not in names and subperiods is None]
     scores = [s for s in scores if s in set(rf["score"])]
     pv = _pvalues(evaluation)
+    small = _too_small(evaluation)
     bench = evaluation.benchmark
     lookup = {(m, v, int(h), sp, s): (r, n) for m, v, h, sp, s, r, n in
               zip(rf["model"].tolist(), rf["variable"].tolist(), rf["horizon"].tolist(), rf["subperiod"].tolist(),
@@ -169,7 +183,8 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
                     for s, sp in columns:
                         r, n = lookup.get((m, var, h, sp, s), (np.nan, None))
                         p = None if m == bench else pv.get((m, var, h, sp, s))
-                        cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p))
+                        cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p,
+                                          note=_note(small, (m, var, h, sp, s))))
                     rows.append((m, cells))
                 groups.append(RowGroup(_group_label(h, rows), {"variable": str(var), "horizon": h}, rows))
             name = slug(prefix, var, f"h{block[0]}" if len(block) == 1 else f"h{block[0]}to{block[-1]}")
@@ -282,6 +297,7 @@ def key_tables(evaluation, *, score: str = "crps", subperiod: str = "full", vari
     if not len(rf) or col is None:
         return []
     pv = _pvalues(evaluation)
+    small = _too_small(evaluation)
     bench = evaluation.benchmark
     tables = []
     for var in _var_order(rf["variable"], variables):
@@ -296,7 +312,8 @@ def key_tables(evaluation, *, score: str = "crps", subperiod: str = "full", vari
             for h in hs:
                 r, n = look.get((m, h), (np.nan, None))
                 p = None if m == bench else pv.get((m, var, h, subperiod, score))
-                cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p))
+                cells.append(Cell(float(r), None if n is None or pd.isna(n) else int(n), p,
+                                  note=_note(small, (m, var, h, subperiod, score))))
             rows.append((m, cells))
         key = {"variable": str(var), "subperiod": subperiod, "score": score}
         tables.append(GridTable(

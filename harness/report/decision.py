@@ -69,6 +69,18 @@ def decision_frame(verdicts, variables=None) -> pd.DataFrame:
     return out[list(COLUMNS)]
 
 
+#: reason clauses the HTML table's own columns already show (ratio, p and n, best set,
+#: calibration passed, truths beaten): left out of its verdict cell so a row stays one line
+_SHOWN_IN_COLUMNS = ("CRPS ratio ", "p = ", "p < ", "n too small for a test", "in the ", "not in the ",
+                     "calibration not rejected", "beats ")
+
+
+def cell_reasons(reasons: str) -> str:
+    """The reasons minus the clauses the table's columns show (what the row adds in words)."""
+    parts = [p for p in str(reasons).split("; ") if p and not p.startswith(_SHOWN_IN_COLUMNS)]
+    return "; ".join(parts)
+
+
 def _na(x) -> bool:
     return x is None or x is pd.NA or (isinstance(x, float | np.floating) and not np.isfinite(x))
 
@@ -145,8 +157,10 @@ class DecisionTable:
                 for k, _lab in shown:
                     if k == "verdict":
                         cls = {"better": "v-better", "worse": "v-worse"}.get(t["word"], "v-none")
-                        tds.append(f'<td class="c-verdict"><span class="verdict {cls}">{e(t["word"])}</span> '
-                                   f'<span class="reasons">{e(t["reasons"])}</span></td>')
+                        # the full reasons in the tooltip, the clauses the columns do not show in print
+                        tds.append(f'<td class="c-verdict" title="{e(t["reasons"])}"><span class="verdict {cls}">'
+                                   f'{e(t["word"])}</span> <span class="reasons">{e(cell_reasons(t["reasons"]))}'
+                                   "</span></td>")
                     elif k == "truths":
                         # break between the clauses only, never inside one
                         tds.append(f'<td class="c-{k}">' + "; ".join(f'<span class="nw">{e(x)}</span>'

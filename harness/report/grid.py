@@ -55,6 +55,8 @@ class Cell:
     pvalue: float | None = None
     best: bool = False
     flag: bool | None = None
+    #: why there is no p-value where one was expected ("n too small": below the test's rule)
+    note: str = ""
 
 
 @dataclass
@@ -155,6 +157,8 @@ class GridTable:
         eq, sep = (" ", " \u00b7 ") if style == "html" else ("=", ", ")
         if self.kind != "pvalue" and p is not None and np.isfinite(p):
             parts.append(f"p{eq}{fmt_p(p)}")
+        elif c.note:
+            parts.append(c.note)
         if c.n is not None:
             parts.append(f"n{eq}{c.n}")
         return sep.join(parts)
@@ -181,7 +185,7 @@ class GridTable:
                     rec[self.row_name] = row
                     rec.update(dict(zip(self.column_levels, col, strict=True)))
                     rec.update(value=c.value, n=c.n, pvalue=c.pvalue, stars=stars(c.pvalue),
-                               mark=self._mark(c), best=c.best)
+                               mark=self._mark(c), best=c.best, note=c.note)
                     if self.kind == "set":
                         rec.update(in_set=c.flag, pvalue=c.value)
                     recs.append(rec)
@@ -281,6 +285,8 @@ class GridTable:
             d = []
             if self.kind != "pvalue" and p is not None and np.isfinite(p):
                 d.append(f"p {fmt_p(p)}")
+            elif c.note:
+                d.append(c.note)
             if with_n and c.n is not None:
                 d.append(f"n {c.n}")
             return f"{t} ({', '.join(d)})" if d else t
@@ -374,6 +380,8 @@ class GridTable:
                     p = c.value if self.kind == "set" else c.pvalue
                     if self.kind != "pvalue" and p is not None and np.isfinite(p):
                         t += f" {{\\scriptsize[p {escape_latex(fmt_p(p))}]}}"
+                    elif c.note:
+                        t += f" {{\\scriptsize[{escape_latex(c.note)}]}}"
                     if c.n is not None:
                         t += f" {{\\scriptsize({c.n})}}"
                     vals.append(t)

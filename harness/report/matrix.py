@@ -86,8 +86,9 @@ def pairwise_tables(evaluation, *, score: str = "crps", variables=None, frame: p
     for var in _var_order(pf["variable"], variables):
         sub = pf[pf["variable"] == var]
         models = model_order(list(sub["model"]) + list(sub["versus"]), evaluation.benchmark)
-        look = {(a, b, int(h)): (r, p, n) for a, b, h, r, p, n in
-                zip(sub["model"], sub["versus"], sub["horizon"], sub["ratio"], sub["pvalue"], sub["n"], strict=True)}
+        look = {(a, b, int(h)): (r, p, n, note) for a, b, h, r, p, n, note in
+                zip(sub["model"], sub["versus"], sub["horizon"], sub["ratio"], sub["pvalue"], sub["n"],
+                    sub["note"].astype(str), strict=True)}
         groups = []
         for h in sorted(int(x) for x in pd.unique(sub["horizon"])):
             rows = []
@@ -95,7 +96,8 @@ def pairwise_tables(evaluation, *, score: str = "crps", variables=None, frame: p
                 cells = []
                 for b in models:
                     r = look.get((a, b, h))
-                    cells.append(Cell(float(r[0]), int(r[2]), float(r[1]) if np.isfinite(r[1]) else None)
+                    cells.append(Cell(float(r[0]), int(r[2]), float(r[1]) if np.isfinite(r[1]) else None,
+                                      note="n too small" if r[3].startswith("n too small") else "")
                                  if r else Cell(np.nan))
                 rows.append((a, cells))
             groups.append(RowGroup(h_label(h), {"variable": str(var), "horizon": h}, rows))

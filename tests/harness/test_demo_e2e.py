@@ -35,8 +35,27 @@ def test_reduced_demo_writes_every_file(tmp_path):
     tables = list((report.parent / "tables").glob("*"))
     assert {p.suffix for p in tables} >= {".md", ".tex", ".csv"}
     assert list((report.parent / "figures").glob("*.png"))
+    _pack_pages_at_most_four(report, tmp_path)
     # the terminal summary gives a plain verdict for every candidate model (not the benchmark)
     summary = "\n".join(lines)
     for model in ("ar", "bvar", "bvar_sv"):
         assert re.search(rf"^- {model}: beats rw under every truth in \d+ of \d+ cells", summary, flags=re.M), model
     assert not re.search(r"^- rw: ", summary, flags=re.M)
+
+
+def _pack_pages_at_most_four(report, tmp_path):
+    """The demo's own pack (its full set of candidates) prints to at most four A4 pages in Chromium."""
+    import shutil
+    import subprocess
+
+    chromium = shutil.which("chromium")
+    if chromium is None:
+        return  # CI installs it; the browser tests say so when it is missing
+    pdf = tmp_path / "pack.pdf"
+    subprocess.run([chromium, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                    "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                    f"--user-data-dir={tmp_path / 'profile'}", "--no-pdf-header-footer", f"--print-to-pdf={pdf}",
+                    report.resolve().as_uri()], capture_output=True, timeout=120)
+    # page objects are "/Type /Page" (ISO 32000-1, sect. 7.7.3.3); "/Pages" is the tree node
+    n = len(re.findall(rb"/Type\s*/Page(?!s)", pdf.read_bytes()))
+    assert 1 <= n <= 4, n

@@ -46,6 +46,25 @@ def test_score_prints_the_decision_view_and_one_table_per_target(small_run):
     assert table_lines and max(map(len, table_lines)) <= 100  # ready to paste into a terminal or an e-mail
 
 
+def test_score_matrix_prints_every_pair_and_the_model_confidence_set(small_run, tmp_path):
+    """--table matrix: every model against every other per horizon (the p-values of the pairwise
+    frame) and the model confidence set; as CSV the typed pairs."""
+    from harness.report.matrix import pairwise_frame
+
+    spec, _ = small_run
+    res = _invoke("score", spec.out, "--table", "matrix", "-q")
+    assert res.exit_code == 0, res.output
+    assert "every model against every other" in res.stdout and "confidence set" in res.stdout.lower()
+    res = _invoke("score", spec.out, "--table", "matrix", "--out", tmp_path / "m.parquet", "-q")
+    assert res.exit_code == 0, res.output
+    got = pd.read_parquet(tmp_path / "m.parquet")
+    want = pairwise_frame(evaluate(spec.out, None))
+    merged = got.dropna(subset=["pvalue"]).merge(want, on=["variable", "horizon", "model", "versus"])
+    assert len(merged) and np.allclose(merged["pvalue_x"], merged["pvalue_y"], rtol=1e-12)
+    small = got[got["note"] == "n too small"]
+    assert small["pvalue"].isna().all() and (small["mark"].fillna("") == "").all()
+
+
 def test_score_csv_is_the_relative_table_typed(small_run):
     """score --format csv holds the CRPS ratios of the evaluation as numbers, with p and n, one row per cell."""
     spec, _ = small_run
