@@ -31,7 +31,7 @@ The contract (what :func:`harness.testing.check_model` verifies)
    (:func:`~harness.models.base.output_array`). A partial quarter (``InfoSet.partial``) is not
    a published value: the layout leaves it out, so your model forecasts it.
 6. **Too little data raises, never NaN.** When the information set cannot support the estimate
-   raise :class:`~harness.models.errors.InsufficientDataError` (``self._fail(...)``) saying which
+   raise :class:`~harness.models.errors.InsufficientDataError` (``self.insufficient_data(...)``) saying which
    variable, how many observations were needed and how many were found. The runner records the
    failure and carries on; NaN draws are refused by the output contract.
 7. **It pickles.** Workers receive the model by pickling: define the class at module level, keep
@@ -100,7 +100,7 @@ class LocalDrift(BaseModel):
             changes = np.diff(y)[-window:]
             m = len(changes)
             if m < 3:
-                raise self._fail(f"variable {name!r} needs at least 4 consecutive observations "
+                raise self.insufficient_data(f"variable {name!r} needs at least 4 consecutive observations "
                                  f"(3 changes), got {len(y)}")
             mean = changes.mean()
             ssr = float(((changes - mean) ** 2).sum())

@@ -1,6 +1,7 @@
 """Benchmarks of the whole harness: prints ``name: value`` lines (ratios measured side by side).
 
-Run: ``python scripts/bench.py [--only cli,store,infoset,models,scoring,runner,loop] [--quick]``.
+Run: ``python scripts/bench.py [--only PART,PART] [--quick]``; the parts are :data:`PARTS` (each a
+``scripts/bench_<part>.py`` with ``run() -> dict``, besides ``cli``).
 Targets are printed next to the measurements; this script never fails on a missed target (the
 machines are noisy): read the ratios.
 """
@@ -18,7 +19,8 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
-PARTS = ("cli", "store", "infoset", "models", "scoring", "runner", "loop")
+PARTS = ("cli", "store", "checksums", "index", "infoset", "models", "bvar_ml", "nowcast", "scoring", "compare",
+         "pools", "report", "runner", "loop")
 
 
 def bench_cli() -> dict[str, float]:
@@ -55,8 +57,10 @@ def main() -> None:
             if not args.quick:
                 res.update(bench_runner.demo_sizes())
         else:
+            import inspect
+
             mod = importlib.import_module(f"bench_{part}")
-            res = mod.run()
+            res = mod.run(quick=args.quick) if "quick" in inspect.signature(mod.run).parameters else mod.run()
         for k, v in res.items():
             print(f"{k}: {v:.6g}" if isinstance(v, float) else f"{k}: {v}", flush=True)
         print(f"# {part} took {time.perf_counter() - t0:.1f}s", flush=True)

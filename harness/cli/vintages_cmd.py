@@ -138,6 +138,9 @@ def ingest_cmd(
     line (frequencies, values of the same cell, metadata), then all are committed in one step,
     one batch file per file with new values. An invalid file leaves the store byte-identical
     and the command stops with a one-line error naming file, line and field.
+
+    Periods: 2024Q3 or 2024-07 (ASCII digits, years 1800-2200); releases: YYYY-MM-DD, at most
+    a year after today unless --allow-future; values: finite numbers.
     """
     from vintages import VintageStore, read_releases
 

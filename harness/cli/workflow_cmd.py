@@ -153,9 +153,12 @@ def score_cmd(
         from harness.verdicts import decide
 
         with ui.stage("deciding: band tests, best set, calibration"):
+            from harness.report.make import load_sensitivity
             from harness.report.sections import _variables
 
-            tables.append(decision_table(decide(ev), variables=_variables(ev)))
+            # the truths side by side, when 'vintage-harness sensitivity' has written them for this run
+            sens = load_sensitivity(Path(run_dir) / "sensitivity")
+            tables.append(decision_table(decide(ev, sensitivity=sens), variables=_variables(ev)))
     if table in (TableChoice.all, TableChoice.scores):
         if f not in ("csv", "parquet"):
             tables.append(Lines(score_header(ev, score)))

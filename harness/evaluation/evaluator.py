@@ -185,7 +185,9 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     ok = frame["ok"].to_numpy()
     draws = ledger.draws.transpose("model", "origin", "variable", "horizon", "draw").values
     draws = draws.reshape(-1, draws.shape[-1])[ok]
-    fc = frame[ok].reset_index(drop=True)
+    # every row kept is a forecast that exists: the ledger's "ok" flag says nothing more here, and a
+    # column of True beside forecasts without a truth would invite a wrong count ("scored" is the one)
+    fc = frame[ok].drop(columns="ok").reset_index(drop=True)
     kw = {k: tuple(getattr(scoring, k)) for k in ("quantile_levels", "coverage_levels", "interval_levels")
           if getattr(scoring, k) is not None}
     # draws are stored as float32: compare them with the truth at the same resolution, so that a
@@ -198,7 +200,7 @@ def evaluate(run: str | Path | Ledger, truth: str | None = None, *, store=None, 
     scores = score_all(obs, draws, **kw)
     for k, v in scores.items():
         fc[k] = v
-    # "ok": the forecast exists; "scored": it also has a published truth (what every count uses)
+    # "scored": the forecast has a published truth under this rule (what every count uses)
     fc["scored"] = np.isfinite(fc["truth"].to_numpy(dtype=np.float64))
     all_periods = pd.PeriodIndex(sorted({pd.Period(p, freq=freq) for p in fc["target_period"]}), freq=freq)
     reg, chron_src, tps = regimes_for(man, cube, all_periods)

@@ -245,6 +245,8 @@ def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
     * **ranking stable across truths**: in which cells the leading model (lowest mean CRPS of
       all models) changes with the truth, naming the leaders.
     """
+    from harness.report.labels import h_label
+
     rows = []
     scored = truth_table[np.isfinite(truth_table["score"].to_numpy(dtype=float))] if len(truth_table) else truth_table
     lead = (scored.loc[scored.groupby(["variable", "horizon", "truth"], sort=False)["score"].idxmin()]
@@ -254,7 +256,7 @@ def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
     changing = leaders[leaders.nunique(axis=1) > 1] if len(leaders) else leaders
     leader_text = ("the leading model is the same under every truth in every cell" if not len(changing)
                    else f"the leading model changes with the truth in {len(changing)} of {len(leaders)} cells ("
-                   + "; ".join(f"{v} h={h}: " + ", ".join(f"{t} {m}" for t, m in r.items() if isinstance(m, str))
+                   + "; ".join(f"{v} {h_label(h)}: " + ", ".join(f"{t} {m}" for t, m in r.items() if isinstance(m, str))
                                for (v, h), r in list(changing.iterrows())[:4])
                    + ("…" if len(changing) > 4 else "") + ")")
     for model, g in truth_table.groupby("model", sort=False):
@@ -263,7 +265,7 @@ def _verdicts(truth_table, data_table, benchmark, alpha=0.10) -> pd.DataFrame:
         wins = g.assign(win=g["ratio"] < 1).pivot_table(index=["variable", "horizon"], columns="truth",
                                                          values="win", aggfunc="first")
         always = wins.all(axis=1)
-        flips = [f"{v} h={h}" for (v, h), s in wins.nunique(axis=1).eq(1).items() if not s]
+        flips = [f"{v} {h_label(h)}" for (v, h), s in wins.nunique(axis=1).eq(1).items() if not s]
         d = data_table[data_table["model"] == model] if len(data_table) else pd.DataFrame()
         beats = f"beats {benchmark} under every truth in {int(always.sum())} of {len(always)} cells"
         if flips:

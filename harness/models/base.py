@@ -340,8 +340,13 @@ class BaseModel:
         raise NotImplementedError(f"{type(self).__name__}.draw is not implemented")
 
     # -- helpers for subclasses -------------------------------------------------
-    def _fail(self, message: str) -> InsufficientDataError:
+    def insufficient_data(self, message: str) -> InsufficientDataError:
+        """The error to raise when the information set cannot support the estimate (say what was
+        needed and what was found): ``raise self.insufficient_data("needs 8 quarters of gdp, got 5")``.
+        The runner records it as the task's failure and carries on."""
         return InsufficientDataError(f"model {self.name!r}: {message}")
+
+    _fail = insufficient_data  # the name the built-in models use
 
     def _bad_param(self, param: str, expected: str, got: Any) -> ModelParameterError:
         return ModelParameterError(f"model {self.name!r}: parameter {param!r} must be {expected}, "

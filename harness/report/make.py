@@ -8,10 +8,14 @@ import pandas as pd
 
 
 def load_sensitivity(path: str | Path):
-    """Read the CSV tables that :meth:`Sensitivity.save` wrote (None when absent)."""
+    """Read the tables that :meth:`Sensitivity.save` wrote: the typed Parquet files, else (folders
+    of earlier versions) the CSVs; None when absent."""
     from harness.evaluation.sensitivity import Sensitivity
 
     path = Path(path)
+    typed = Sensitivity.load(path)
+    if typed is not None:
+        return typed
     if not (path / "sensitivity_truths.csv").is_file():
         return None
 

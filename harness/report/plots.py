@@ -518,14 +518,18 @@ def fluctuation_figure(evaluation, variables, *, mu: float | None = None) -> byt
                 # the first window: from the first scored target to where the path can start
                 yb = -ymax * 0.86
                 g.plot(i, j, [xl[0] + 0.15, first_end], [yb, yb], color="0.2", lw=0.8, marker="|", ms=5)
-                g.text(i, j, (xl[0] + first_end) / 2, yb, "first window", ha="center", va="bottom", fontsize=6.5)
+                if j == 0:  # named once per row, inside the panel, starting at the bracket
+                    g.text(i, j, xl[0] + 0.3, yb + ymax * 0.04, "first window", ha="left", va="bottom",
+                           fontsize=6)
             if i == 0:
                 g.title(i, j, mpl_text(f"{m} − {bench}"))
         g.yticks(i, nice_ticks(-ymax, ymax, n=5))
         g.row_label(i, mpl_text(f"{v}: fluctuation statistic"), offset_in=0.45)
     g.frames()
+    # narrow panels take fewer year labels, so that neighbours' labels never touch
+    n_ticks = max(2, min(5, 9 // max(len(models), 1)))
     for j in range(len(models)):
-        g.xticks(j, _year_tick_values(*xl, max_ticks=5))
+        g.xticks(j, _year_tick_values(*xl, max_ticks=n_ticks))
     g.xlabel("end of the rolling window (target period)", offset_in=0.25)
     handles, labels = _legend_handles(g)
     _legend(fig, handles, labels, y_in=top + 0.02, ncol=10)

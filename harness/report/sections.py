@@ -318,11 +318,15 @@ def _over_time(c) -> str:
     if fl is None or not len(fl):
         return _p("No fluctuation test in this evaluation (too few paired forecasts).")
     mu = _fluctuation_mu(ev)
+    tested = sorted(int(h) for h in pd.unique(fl["horizon"]))
+    untested = sorted(set(int(h) for h in pd.unique(ev.forecasts["horizon"])) - set(tested))
+    gap = (f" Not drawn: {', '.join(h_label(h) for h in untested)} (too few paired forecasts for the test's "
+           "windows)." if untested else "")
     body = [_p("The Giacomini–Rossi fluctuation statistic: the mean CRPS difference between each model and the "
                f"incumbent over a rolling window of a share μ = {mu:g} of the paired forecasts, standardised by "
                "the full-sample long-run standard deviation, plotted at the window's last target period. "
                "Outside the dashed band the two differ significantly (5%) over that window. The axis spans the "
-               "whole scored sample (the path begins where the first full window ends); recessions shaded."),
+               "whole scored sample (the path begins where the first full window ends); recessions shaded." + gap),
             rep.figure(plots.fluctuation_figure(ev, c.variables, mu=mu), "over_time",
                        f"Fluctuation test path per model (panels) and horizon (lines), window share μ = {mu:g}",
                        "Fluctuation test paths")]

@@ -26,7 +26,8 @@ HELP_HEAVY = HEAVY + ("numpy", "pandas", "xarray", "pyarrow", "scipy", "numba", 
 HELP_COMMANDS = [[], ["run"], ["score"], ["report"], ["sensitivity"], ["demo"], ["cache"], ["cache", "info"],
                  ["cache", "clean"], ["vintages"], ["vintages", "init"], ["vintages", "ingest"],
                  ["vintages", "info"], ["vintages", "verify"], ["vintages", "cleanup"], ["vintages", "describe"],
-                 ["vintages", "asof"], ["vintages", "export"], ["vintages", "revisions"]]
+                 ["vintages", "asof"], ["vintages", "export"], ["vintages", "revisions"], ["news"], ["ledger"],
+                 ["ledger", "export"]]
 
 SCRIPT = """
 import json, sys
@@ -88,6 +89,12 @@ def small_run(tmp_path_factory):
     (["cache", "clean", "--cache", "{d}/cache"], ()),
     (["vintages", "info", "{d}/store"], ()),
     (["vintages", "asof", "{d}/store", "2012-05-01"], ()),
+    (["vintages", "verify", "{d}/store"], ()),
+    (["vintages", "export", "{d}/store", "{d}/all.parquet"], ()),
+    (["vintages", "revisions", "{d}/store", "gdp"], ("scipy.stats",)),  # regression p-values
+    (["ledger", "export", "{d}/run", "--out", "{d}/q.parquet"], ()),
+    (["news", "{d}/run"], ()),  # refused (no model with a decomposition) before any heavy import
+    (["score", "{d}/run", "--table", "matrix"], ()),
     pytest.param(["report", "{d}/run", "--out", "{d}/report"], ("matplotlib",),  # plots
                  marks=pytest.mark.slow),
     (["sensitivity", "{d}/spec.toml", "--no-data-check"], ("scipy.stats",)),  # rank correlations
