@@ -713,8 +713,14 @@ def news_figure(frames) -> bytes | None:
     groups = [news_by_variable(f) for f in frames]
     groups = [g[g["kind"].astype(str) != "total"] for g in groups]
     n = max(len(g) for g in groups)
-    fig, axes = plt.subplots(1, len(frames), figsize=(PAGE_WIDTH, 0.22 * n + 1.25), squeeze=False, sharex=True)
-    for ax, f, g in zip(axes[0], frames, groups, strict=True):
+    # at most two panels a row, so that each keeps room for its labels and title
+    ncol = min(2, len(frames))
+    nrow = -(-len(frames) // ncol)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(PAGE_WIDTH, nrow * (0.22 * n + 1.2) + 0.5), squeeze=False,
+                             sharex=True)
+    for ax in axes.flat[len(frames):]:
+        ax.set_visible(False)
+    for ax, f, g in zip(axes.flat, frames, groups):
         kinds = g["kind"].astype(str).to_numpy()
         labels = [f"{v} ({k})" if k in ("news", "revision") else k for v, k in zip(g["variable"], kinds, strict=True)]
         y = np.arange(len(g))[::-1]
@@ -729,10 +735,11 @@ def news_figure(frames) -> bytes | None:
                               f"{a.get('forecast_old', np.nan):.2f} → {a.get('forecast_new', np.nan):.2f} "
                               f"(total {a.get('forecast_new', np.nan) - a.get('forecast_old', np.nan):+.2f})"),
                      fontsize=7.5)
-        ax.set_xlabel("contribution to the change of the forecast")
     top = suptitle(fig, "What moved the nowcast: the change of the point forecast between two origins, split into "
                    "the news of each release, revisions and re-estimation")
-    _layout(fig, left=1.25, top=top + 0.45, bottom=0.45, wspace=0.9)
+    fig.text(0.5, 0.01, "contribution to the change of the forecast (in the target's units)", ha="center", va="bottom",
+             fontsize=8)
+    _layout(fig, left=1.25, top=top + 0.45, bottom=0.55, wspace=0.9, hspace=0.45)
     return to_png(fig)
 
 
