@@ -720,7 +720,7 @@ def news_figure(frames) -> bytes | None:
                              sharex=True)
     for ax in axes.flat[len(frames):]:
         ax.set_visible(False)
-    for ax, f, g in zip(axes.flat, frames, groups):
+    for ax, f, g in zip(list(axes.flat)[:len(frames)], frames, groups, strict=True):
         kinds = g["kind"].astype(str).to_numpy()
         labels = [f"{v} ({k})" if k in ("news", "revision") else k for v, k in zip(g["variable"], kinds, strict=True)]
         y = np.arange(len(g))[::-1]
