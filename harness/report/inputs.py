@@ -136,9 +136,13 @@ def gather_extras(run_dir, manifest, *, news: bool = True, log=None) -> Extras:
         if not covered:
             ex.notes["news"] = "no model of the run has a news decomposition (types dfm, bvar)"
         else:
-            # every model with a decomposition (the factor model and the BVAR answer the same
-            # question differently; the meeting sees both)
-            for model in covered:
+            # one model of each type with a decomposition, the factor model first (the factor model
+            # and the BVAR answer the question differently; two BVARs of one run much alike)
+            types = {m: str(manifest.model_specs.get(m, {}).get("type", "")) for m in covered}
+            first_of_type = {}
+            for m in covered:
+                first_of_type.setdefault(types[m], m)
+            for model in sorted(first_of_type.values(), key=lambda m: types[m] != "dfm"):
                 for a, b in news_pairs(manifest.origins):
                     for t in targets:
                         say(f"news {model} {t} {a} → {b}")
