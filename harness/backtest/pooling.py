@@ -75,6 +75,39 @@ def _pool_key(spec, pool, member_keys: list[str], truths: pd.DataFrame) -> str:
     return h.hexdigest()[:32]
 
 
+def _origin_keys(spec, pool, plan, cache, members: list[str], truths: pd.DataFrame) -> list[str]:
+    """One key per origin: the pool's settings, its members' task keys at this and earlier
+    origins (with whether each succeeded: a retried member changes the pool), and the truths
+    published on or before it.
+
+    That is everything the pool's draws at an origin depend on (its weights use only forecasts
+    scored by truths published by then, its draws the members' draws there and a generator of
+    the origin's own; :mod:`harness.pools`), so a change at a later origin, or a truth published
+    later, leaves the earlier origins' pool tasks cached.
+    """
+    h = hashlib.sha256()
+    h.update(json.dumps({"pool": pool.name, "scheme": pool.scheme, "members": list(pool.members),
+                         "window": pool.window, "min_scored": pool.min_scored, "score": pool.score,
+                         "truth": pool.truth, "seed": spec.seed, "draws": spec.draws,
+                         "version": 2}, sort_keys=True).encode())
+    by = {(t.model, t.index): t.key for t in plan.tasks}
+    rel = pd.to_datetime(truths["truth_release"]).to_numpy(dtype="datetime64[D]")
+    known = truths.assign(_rel=rel)[~np.isnat(rel)].sort_values(["_rel", "variable", "target_period"])
+    known_rel = known["_rel"].to_numpy()
+    text = [f"{v}|{p}|{x!r}|{r}" for v, p, x, r in zip(known["variable"], known["target_period"],
+                                                     known["truth"], known_rel, strict=True)]
+    keys, j = [], 0
+    for i, o in enumerate(np.asarray(plan.origins, dtype="datetime64[D]")):
+        for m in members:
+            k = by.get((m, i))
+            h.update(f"{k}:{'ok' if k is not None and cache.has(k) else 'none'}\n".encode())
+        while j < len(text) and known_rel[j] <= o:
+            h.update(text[j].encode() + b"\n")
+            j += 1
+        keys.append(h.copy().hexdigest()[:32])
+    return keys
+
+
 def pool_seed(seed: int, name: str) -> int:
     """The pool's seed, spawned from the run's seed and the pool's name."""
     ss = np.random.SeedSequence(int(seed), spawn_key=(zlib.crc32(b"pool"), zlib.crc32(name.encode())))
@@ -110,7 +143,8 @@ def compute_pools(plan, cache, records: dict[str, dict]) -> PoolOutcome:
         mkeys = [t.key for m in members for t in plan.tasks if t.model == m]
         truths = _truth_table(plan, pool.truth)
         pkey = _pool_key(spec, pool, mkeys, truths)
-        okeys = [hashlib.sha256(f"{pkey}:{o}".encode()).hexdigest()[:32] for o in plan.origins]
+        okeys = _origin_keys(spec, pool, plan, cache, members, truths)
+        was_cached = [cache.has(k) for k in okeys]
         out.pool_keys.append(pkey)
         weights_path = cache.root / "pools" / f"{pkey}.parquet"
         meta_path = cache.root / "pools" / f"{pkey}.json"
@@ -131,6 +165,8 @@ def compute_pools(plan, cache, records: dict[str, dict]) -> PoolOutcome:
             for i, (o, k) in enumerate(zip(plan.origins, okeys, strict=True)):
                 import xarray as xr
 
+                if was_cached[i]:
+                    continue  # the same inputs up to this origin: the cached draws are these draws
                 da = xr.DataArray(np.moveaxis(res.draws[i], -1, 0).astype(np.float64),
                                   dims=("draw", "variable", "horizon"),
                                   coords={"draw": np.arange(spec.draws),
@@ -153,9 +189,9 @@ def compute_pools(plan, cache, records: dict[str, dict]) -> PoolOutcome:
         meta = json.loads(meta_path.read_text())
         out.warnings.extend(meta.get("warnings", []))
         frames.append(w)
-        for o, k in zip(plan.origins, okeys, strict=True):
+        for o, k, hit in zip(plan.origins, okeys, was_cached, strict=True):
             ok = cache.has(k)
-            out.records.append({"model": pool.name, "origin": str(o), "key": k, "cached": cached,
+            out.records.append({"model": pool.name, "origin": str(o), "key": k, "cached": cached or hit,
                                 "status": "ok" if ok else "failed", "elapsed": 0.0,
                                 **({} if ok else {"error": "no member has a forecast at this origin"})})
         out.timings[pool.name] = time.perf_counter() - t0

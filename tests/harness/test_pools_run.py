@@ -70,3 +70,32 @@ def test_a_pool_that_never_leaves_its_fallback_is_named_in_the_summary(tmp_path,
     lines = [w for w in res.warnings if w.startswith("late:")]
     assert len(lines) == 1 and f"in {len(res.manifest.pool_warnings)} cell(s)" in lines[0]
     assert "warning: late: fallback used" in res.summary()
+
+
+def test_a_release_before_the_last_origin_refits_only_the_last_pool_tasks(tmp_path, small_store):
+    """A revision released between the last two origins changes the members' information set at
+    the last origin only; each pool then recomputes its last origin and reads every earlier one
+    from the cache, with draws equal to those of a run from scratch on the new store (the pool
+    at an origin depends on nothing published later: the real-time property)."""
+    import shutil
+
+    from vintages import VintageStore
+
+    store = tmp_path / "store"
+    shutil.copytree(small_store, store)
+    spec = load_spec(_spec(tmp_path, store))
+    first = run(spec, jobs=1, progress=False)
+    origins = sorted(pd.to_datetime(first.manifest.origins))
+    day = origins[-1] - pd.Timedelta(days=10)
+    VintageStore(store).append(pd.DataFrame({"variable": ["gdp"], "period": ["2014Q1"],
+                                             "release": [day.date().isoformat()], "value": [123.0]}),
+                               source="revision")
+    again = run(spec, jobs=1, progress=False)
+    pools = {"eq", "opt", "inv"}
+    redone = [t for t in again.manifest.tasks if t["model"] in pools and not t["cached"]]
+    assert redone and {t["origin"][:10] for t in redone} == {str(origins[-1].date())}
+    assert len(redone) == len(pools)
+    fresh = spec.with_run(cache=tmp_path / "fresh-cache", out=tmp_path / "fresh")
+    scratch = run(fresh, jobs=1, progress=False)
+    a, b = read_ledger(again.run_dir).draws, read_ledger(scratch.run_dir).draws
+    np.testing.assert_array_equal(a.sel(model=sorted(pools)).values, b.sel(model=sorted(pools)).values)
