@@ -41,6 +41,7 @@ _PUBLIC: dict[str, str] = {
     "open_store": "vintages.store",
     "atomic_write_bytes": "vintages.store",
     "sha256_file": "vintages.store",
+    "sha256_matches": "vintages.store",
     "atomic_writer": "vintages.store",
     "CleanupResult": "vintages.store",
     "STORE_FORMAT": ("vintages.store", "FORMAT"),

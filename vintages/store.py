@@ -239,6 +239,26 @@ def sha256_file(path: str | os.PathLike) -> str:
     return h.hexdigest()
 
 
+def sha256_matches(path: str | os.PathLike, digest: str) -> bool:
+    """Whether ``path``'s SHA-256 starts with ``digest`` (a full or shortened hex digest).
+
+    A match is remembered per process under the same file identity as the batch reads use
+    (device, inode, size, modification and change times; not for a file changed within the
+    last moments), so a content-addressed file is hashed once however often it is read.
+    """
+    st = os.stat(path)
+    key = (str(path), st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+    if _VERIFIED.get(key, "").startswith(digest):
+        return True
+    t0 = time.time_ns()
+    full = sha256_file(path)
+    if not full.startswith(digest):
+        return False
+    if max(st.st_mtime_ns, st.st_ctime_ns) < t0 - _RACY_NS:
+        _VERIFIED[key] = full
+    return True
+
+
 # --------------------------------------------------------------------------- the manifest
 def _canonical(obj) -> bytes:
     return json.dumps(obj, sort_keys=True, separators=(",", ":"), ensure_ascii=True,
@@ -1156,4 +1176,4 @@ def open_store(path) -> VintageStore:
 
 
 __all__ = ["atomic_write_bytes", "atomic_writer", "VintageStore", "AppendResult", "CleanupResult",
-           "open_store", "sha256_file", "InputError", "FORMAT", "READ_FORMATS", "clear_verified_cache"]
+           "open_store", "sha256_file", "sha256_matches", "InputError", "FORMAT", "READ_FORMATS", "clear_verified_cache"]

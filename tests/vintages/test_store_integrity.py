@@ -379,3 +379,21 @@ def test_upgrade_keeps_store_checksum_of_format_1(v1):
     sealed = _seal(json.loads(json.dumps(m)), "2020-01-01T00:00:00+00:00")
     assert store_mod._checksum(sealed) == digest
     assert np.all([b["sha256"] for b in sealed["batches"]] == [b["sha256"] for b in m["batches"]])
+
+
+def test_sha256_matches_a_prefix_and_notices_a_rewrite(tmp_path):
+    """The digest prefix is compared with hashlib's SHA-256 (FIPS 180-4) of the bytes; a file
+    rewritten with other bytes no longer matches, even after a remembered match."""
+    import hashlib
+    import os
+
+    from vintages import sha256_matches
+
+    f = tmp_path / "x.parquet"
+    f.write_bytes(b"first")
+    old = hashlib.sha256(b"first").hexdigest()
+    os.utime(f, ns=(10**18, 10**18 - 10**12))  # an old file: its match may be remembered
+    assert sha256_matches(f, old[:16]) and sha256_matches(f, old)
+    f.write_bytes(b"other")
+    assert not sha256_matches(f, old[:16])
+    assert sha256_matches(f, hashlib.sha256(b"other").hexdigest()[:16])
