@@ -64,12 +64,16 @@ def _truth_table(plan, rule: str) -> pd.DataFrame:
     return pd.concat(rows, ignore_index=True)
 
 
+def _settings(spec, pool, version: int) -> bytes:
+    """What a pool's key hashes of its settings and the run's (seed, draws)."""
+    return json.dumps({"pool": pool.name, "scheme": pool.scheme, "members": list(pool.members),
+                       "window": pool.window, "min_scored": pool.min_scored, "score": pool.score,
+                       "truth": pool.truth, "seed": spec.seed, "draws": spec.draws,
+                       "version": version}, sort_keys=True).encode()
+
+
 def _pool_key(spec, pool, member_keys: list[str], truths: pd.DataFrame) -> str:
-    h = hashlib.sha256()
-    h.update(json.dumps({"pool": pool.name, "scheme": pool.scheme, "members": list(pool.members),
-                         "window": pool.window, "min_scored": pool.min_scored, "score": pool.score,
-                         "truth": pool.truth, "seed": spec.seed, "draws": spec.draws,
-                         "version": 1}, sort_keys=True).encode())
+    h = hashlib.sha256(_settings(spec, pool, 1))
     h.update("\n".join(member_keys).encode())
     h.update(pd.util.hash_pandas_object(truths, index=False).to_numpy().tobytes())
     return h.hexdigest()[:32]
@@ -85,11 +89,7 @@ def _origin_keys(spec, pool, plan, cache, members: list[str], truths: pd.DataFra
     the origin's own; :mod:`harness.pools`), so a change at a later origin, or a truth published
     later, leaves the earlier origins' pool tasks cached.
     """
-    h = hashlib.sha256()
-    h.update(json.dumps({"pool": pool.name, "scheme": pool.scheme, "members": list(pool.members),
-                         "window": pool.window, "min_scored": pool.min_scored, "score": pool.score,
-                         "truth": pool.truth, "seed": spec.seed, "draws": spec.draws,
-                         "version": 2}, sort_keys=True).encode())
+    h = hashlib.sha256(_settings(spec, pool, 2))
     by = {(t.model, t.index): t.key for t in plan.tasks}
     rel = pd.to_datetime(truths["truth_release"]).to_numpy(dtype="datetime64[D]")
     known = truths.assign(_rel=rel)[~np.isnat(rel)].sort_values(["_rel", "variable", "target_period"])

@@ -178,10 +178,12 @@ def store_extra(run_dir: Path, key: str, name: str, frames: dict) -> None:
 
 def stage_key(**settings: Any) -> str:
     """A short digest of a later stage's settings and of its code (for :func:`store_extra` names)."""
-    import harness
+    if "verdicts" not in _CODE:  # the verdict stage's code, read once per process like _code_digest
+        import harness
 
-    h = hashlib.sha256(json.dumps(settings, sort_keys=True, default=str).encode())
-    for f in sorted((Path(harness.__file__).parent / "verdicts").glob("*.py")):
-        h.update(f.name.encode() + b"\0" + f.read_bytes())
-    h.update(_code_digest().encode())
-    return h.hexdigest()[:16]
+        h = hashlib.sha256(_code_digest().encode())
+        for f in sorted((Path(harness.__file__).parent / "verdicts").glob("*.py")):
+            h.update(f.name.encode() + b"\0" + f.read_bytes())
+        _CODE["verdicts"] = h.hexdigest()
+    payload = json.dumps(settings, sort_keys=True, default=str) + _CODE["verdicts"]
+    return hashlib.sha256(payload.encode()).hexdigest()[:16]

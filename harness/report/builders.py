@@ -89,29 +89,23 @@ def _group_label(h: int, rows) -> str:
 _PV_CACHE: dict = {}
 
 
-def _pvalues(evaluation) -> dict:
-    """``{(model, variable, horizon, subperiod, score): p}`` of the tests against the benchmark (memoised)."""
+def _pvalues(evaluation) -> tuple[dict, set]:
+    """``{(model, variable, horizon, subperiod, score): p}`` of the tests against the benchmark, and
+    the keys whose test was not run for too few forecasts (its "n too small" note); memoised."""
     t = evaluation.tests
     if t is None or not len(t):
-        return {}
+        return {}, set()
     if _PV_CACHE.get("tests") is t:
-        return _PV_CACHE["pv"]
+        return _PV_CACHE["pv"], _PV_CACHE["small"]
     # lists, not pandas columns: iterating Arrow-backed text columns element by element is slow
-    keys = zip(t["model"].tolist(), t["variable"].tolist(), t["horizon"].astype(int).tolist(),
-               t["subperiod"].tolist(), t["score"].tolist(), strict=True)
-    keys = list(keys)
+    keys = list(zip(t["model"].tolist(), t["variable"].tolist(), t["horizon"].astype(int).tolist(),
+                    t["subperiod"].tolist(), t["score"].tolist(), strict=True))
     pv = dict(zip(keys, t["pvalue"].to_numpy(dtype=float).tolist(), strict=True))
     notes = t["note"].astype(str).tolist() if "note" in t else [""] * len(keys)
     small = {k for k, note in zip(keys, notes, strict=True) if note.startswith("n too small")}
     _PV_CACHE.clear()
     _PV_CACHE.update(tests=t, pv=pv, small=small)
-    return pv
-
-
-def _too_small(evaluation) -> set:
-    """Keys of :func:`_pvalues` whose test was not run: fewer forecasts than its minimum-sample rule."""
-    _pvalues(evaluation)
-    return _PV_CACHE.get("small", set()) if _PV_CACHE.get("tests") is evaluation.tests else set()
+    return pv, small
 
 
 def _note(small: set, key) -> str:
@@ -157,8 +151,7 @@ def ratio_tables(evaluation, *, scores=("crps", "se_mean"), subperiods=None, pre
     names = [s for s in (subperiods or evaluation.subperiod_names or present) if s in present]
     names += [s for s in present if s not in names and subperiods is None]
     scores = [s for s in scores if s in set(rf["score"])]
-    pv = _pvalues(evaluation)
-    small = _too_small(evaluation)
+    pv, small = _pvalues(evaluation)
     bench = evaluation.benchmark
     lookup = {(m, v, int(h), sp, s): (r, n) for m, v, h, sp, s, r, n in
               zip(rf["model"].tolist(), rf["variable"].tolist(), rf["horizon"].tolist(), rf["subperiod"].tolist(),
@@ -296,8 +289,7 @@ def key_tables(evaluation, *, score: str = "crps", subperiod: str = "full", vari
     rf = ratio_frame(evaluation, [score], [subperiod])
     if not len(rf) or col is None:
         return []
-    pv = _pvalues(evaluation)
-    small = _too_small(evaluation)
+    pv, small = _pvalues(evaluation)
     bench = evaluation.benchmark
     tables = []
     for var in _var_order(rf["variable"], variables):

@@ -34,8 +34,9 @@ def test_the_readme_model_passes_check_model(tmp_path, monkeypatch):
 
 
 def test_the_readme_model_runs_from_a_spec_by_file_path(tmp_path, small_store):
-    """``type = "models/naive_drift.py:NaiveDrift"`` resolves relative to the spec; one step ahead
-    the draws' mean is the last value plus the mean change (the drift estimate; a check by hand)."""
+    """``type = "models/naive_drift.py:NaiveDrift"`` resolves relative to the spec: every task of
+    the file's model succeeds and stores finite draws (its statistics are check_model's business,
+    above)."""
     (tmp_path / "models").mkdir()
     (tmp_path / "models" / "naive_drift.py").write_text(_example())
     extra = '[models.drift]\ntype = "models/naive_drift.py:NaiveDrift"\n'
