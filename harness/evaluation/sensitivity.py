@@ -109,14 +109,21 @@ class Sensitivity:
 
     @classmethod
     def load(cls, path: str | Path) -> Sensitivity | None:
-        """Read what :meth:`save` wrote (Parquet, typed; the CSVs are for people), None when absent."""
+        """Read what :meth:`save` wrote: the typed Parquet files, else (folders of earlier versions,
+        which wrote CSV only) the CSVs; None when absent."""
         path = Path(path)
-        if not (path / "sensitivity_truths.parquet").is_file():
+        suffix = next((s for s in (".parquet", ".csv") if (path / f"sensitivity_truths{s}").is_file()), None)
+        if suffix is None:
             return None
 
         def rd(stem):
-            p = path / f"{stem}.parquet"
-            return pd.read_parquet(p) if p.is_file() else pd.DataFrame()
+            p = path / f"{stem}{suffix}"
+            if not p.is_file():
+                return pd.DataFrame()
+            try:
+                return pd.read_parquet(p) if suffix == ".parquet" else pd.read_csv(p)
+            except pd.errors.EmptyDataError:  # an empty CSV table
+                return pd.DataFrame()
 
         tt = rd("sensitivity_truths")
         truths = tuple(pd.unique(tt["truth"])) if len(tt) else ()

@@ -4,32 +4,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import pandas as pd
-
 
 def load_sensitivity(path: str | Path):
-    """Read the tables that :meth:`Sensitivity.save` wrote: the typed Parquet files, else (folders
-    of earlier versions) the CSVs; None when absent."""
+    """The sensitivity tables a run keeps in ``path`` (:meth:`Sensitivity.load`), None when absent."""
     from harness.evaluation.sensitivity import Sensitivity
 
-    path = Path(path)
-    typed = Sensitivity.load(path)
-    if typed is not None:
-        return typed
-    if not (path / "sensitivity_truths.csv").is_file():
-        return None
-
-    def rd(name):
-        p = path / name
-        try:
-            return pd.read_csv(p) if p.is_file() else pd.DataFrame()
-        except pd.errors.EmptyDataError:
-            return pd.DataFrame()
-
-    tt = rd("sensitivity_truths.csv")
-    truths = tuple(pd.unique(tt["truth"])) if len(tt) else ()
-    return Sensitivity(tt, rd("sensitivity_rankings.csv"), rd("sensitivity_data.csv"), rd("revision_exposure.csv"),
-                       rd("sensitivity_verdicts.csv"), truths, None)
+    return Sensitivity.load(path)
 
 
 def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, evaluation=None, echo=None,

@@ -133,3 +133,28 @@ def test_ranking_swaps_on_a_constructed_table():
     assert r["spearman"] == pytest.approx(0.5)
     same = ranking_swaps(scores.assign(value=[1.0, 2.0, 3.0, 1.5, 2.5, 3.5])).iloc[0]
     assert same["n_swaps"] == 0 and same["spearman"] == pytest.approx(1.0)
+
+
+def test_saved_tables_read_back_from_parquet_and_from_csv_only_folders(tmp_path):
+    """Sensitivity.load reads the typed Parquet files, and the CSVs of folders that earlier
+    versions wrote without them; both give the truths table that was saved (common practice:
+    a round trip through the writer's own formats)."""
+    import shutil
+
+    import pandas as pd
+
+    from harness.evaluation.sensitivity import Sensitivity
+
+    tt = pd.DataFrame({"truth": ["first", "latest"], "model": ["ar", "ar"], "variable": ["gdp", "gdp"],
+                       "horizon": [0, 0], "n": [10, 10], "score": [0.5, 0.6], "ratio": [0.9, 1.1]})
+    empty = pd.DataFrame()
+    Sensitivity(tt, empty, empty, empty, empty, ("first", "latest"), None).save(tmp_path / "s")
+    typed = Sensitivity.load(tmp_path / "s")
+    shutil.copytree(tmp_path / "s", tmp_path / "old")
+    for p in (tmp_path / "old").glob("*.parquet"):
+        p.unlink()
+    old = Sensitivity.load(tmp_path / "old")
+    for got in (typed, old):
+        pd.testing.assert_frame_equal(got.truth_table.reset_index(drop=True), tt, check_dtype=False)
+        assert got.truths == ("first", "latest")
+    assert Sensitivity.load(tmp_path / "none") is None
