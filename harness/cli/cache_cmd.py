@@ -11,7 +11,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import LOCKED_ERROR, USAGE_ERROR, fail, friendly
+from harness.cli._common import USAGE_ERROR, fail, friendly
 
 app = typer.Typer(no_args_is_help=True, add_completion=False, rich_markup_mode=None)
 
@@ -82,13 +82,9 @@ def clean_cmd(
     their run.json does not name. Never runs beside a run (exit 3 while one uses the cache).
     """
     from harness.backtest.cache import TaskCache
-    from harness.backtest.errors import CacheBusyError
 
     root = _resolve(cache, spec, store)
-    try:
-        res = TaskCache(root).clean(apply=apply)
-    except CacheBusyError as exc:
-        fail(str(exc), code=LOCKED_ERROR)
+    res = TaskCache(root).clean(apply=apply)  # CacheBusyError: exit 3 (harness.cli._common.exit_code)
     for rel, size in res.removable:
         typer.echo(f"{'removed' if rel in res.removed else 'would remove'} {rel} ({size / 1e3:.0f} kB)")
     for note in res.skipped:

@@ -7,14 +7,13 @@ writer holds the store's lock: retry when it has finished.
 
 from __future__ import annotations
 
-import functools
 from enum import Enum
 from pathlib import Path
 from typing import Annotated
 
 import typer
 
-from harness.cli._common import LOCKED_ERROR, USAGE_ERROR, fail, friendly
+from harness.cli._common import USAGE_ERROR, fail, friendly
 
 app = typer.Typer(no_args_is_help=True, add_completion=False)
 
@@ -63,21 +62,6 @@ class ExportFormat(str, Enum):
 StoreArg = Annotated[Path, typer.Argument(help="Path of the vintage store directory.")]
 
 
-def _locked_is_3(func):
-    """Turn StoreLockedError into exit code 3 (the caller may simply retry)."""
-
-    @functools.wraps(func)
-    def wrapper(*args, **kwargs):
-        from vintages import StoreLockedError
-
-        try:
-            return func(*args, **kwargs)
-        except StoreLockedError as exc:
-            fail(str(exc).splitlines()[0], code=LOCKED_ERROR)
-
-    return wrapper
-
-
 def _notes(st, m) -> None:
     """Notes on stderr: an older store format, files left by interrupted writes."""
     note = st.format_note(m)
@@ -102,7 +86,6 @@ def init_cmd(store: StoreArg) -> None:
 
 @app.command("ingest")
 @friendly
-@_locked_is_3
 def ingest_cmd(
     store: StoreArg,
     files: Annotated[list[Path], typer.Argument(help="Release files (CSV or Parquet).")],
@@ -219,7 +202,6 @@ def verify_cmd(store: StoreArg) -> None:
 
 @app.command("cleanup")
 @friendly
-@_locked_is_3
 def cleanup_cmd(
     store: StoreArg,
     apply: Annotated[bool, typer.Option("--apply", help="Remove the files (without it: a dry run that only lists them).")] = False,
@@ -242,7 +224,6 @@ def cleanup_cmd(
 
 @app.command("describe")
 @friendly
-@_locked_is_3
 def describe_cmd(
     store: StoreArg,
     variable: Annotated[str, typer.Argument(help="Variable whose metadata change.")],
