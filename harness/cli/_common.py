@@ -71,6 +71,14 @@ def friendly(func):
     return wrapper
 
 
+def output_format(fmt, out) -> str:
+    """The output format of a table command (``--format``, a string or an enum member, else the
+    ``--out`` suffix), checked before any work: a bad one is a FormatError, exit 2."""
+    from harness.report.textout import resolve_format
+
+    return resolve_format(getattr(fmt, "value", fmt), out)
+
+
 def echo_table(df, fmt: str = "table") -> None:
     """Print a DataFrame as an aligned table or CSV on stdout."""
     if fmt == "csv":

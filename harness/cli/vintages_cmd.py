@@ -13,7 +13,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import USAGE_ERROR, fail, friendly
+from harness.cli._common import USAGE_ERROR, fail, friendly, output_format
 
 app = typer.Typer(no_args_is_help=True, add_completion=False)
 
@@ -44,15 +44,7 @@ OutOpt = Annotated[Path | None, typer.Option(help="Write the table to this file 
                                              "terminal.")]
 
 
-def _fmt(fmt, out) -> str:
-    """The output format, checked before any work (a bad one is a usage error, exit 2)."""
-    from harness.report.textout import FormatError, resolve_format
-
-    try:
-        return resolve_format(fmt.value if fmt is not None else None, out)
-    except FormatError as exc:
-        fail(str(exc), code=USAGE_ERROR)
-
+_fmt = output_format
 
 class ExportFormat(str, Enum):
     csv = "csv"

@@ -8,7 +8,7 @@ from typing import Annotated
 
 import typer
 
-from harness.cli._common import TASKS_FAILED, friendly
+from harness.cli._common import TASKS_FAILED, friendly, output_format
 
 
 class Backend(str, Enum):
@@ -37,16 +37,7 @@ _FORMAT_HELP = ("Output format: text (aligned, ready to paste), md, tex, csv or 
                 "Default: from the --out suffix, else text.")
 
 
-def _fmt(fmt: str | None, out: Path | None) -> str:
-    """The output format, checked before any work (a bad one is a usage error, exit 2)."""
-    from harness.cli._common import USAGE_ERROR, fail
-    from harness.report.textout import FormatError, resolve_format
-
-    try:
-        return resolve_format(fmt, out)
-    except FormatError as exc:
-        fail(str(exc), code=USAGE_ERROR)
-
+_fmt = output_format
 
 def _display(quiet: bool):
     from harness.ui import Display

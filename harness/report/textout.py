@@ -17,6 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from harness.errors import OptionError
 from harness.report.escape import csv_safe, escape_latex, escape_markdown
 from harness.report.grid import FrameTable
 from harness.report.labels import CAUTION_SHORT
@@ -26,8 +27,9 @@ _SUFFIX = {".md": "md", ".markdown": "md", ".tex": "tex", ".csv": "csv", ".parqu
            ".txt": "text"}
 
 
-class FormatError(ValueError):
-    """An output format that is unknown or cannot go where it was asked to (Parquet to a terminal)."""
+class FormatError(OptionError):
+    """An output format that is unknown or cannot go where it was asked to (Parquet to a terminal);
+    a usage error (exit 2)."""
 
 
 def resolve_format(fmt: str | None, out: Path | None) -> str:
