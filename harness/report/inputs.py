@@ -100,7 +100,7 @@ def history_at(cube, manifest, origin, variables) -> dict[str, pd.Series]:
     return out
 
 
-def gather_extras(run_dir, manifest, *, news: bool = True, log=None) -> Extras:
+def gather_extras(run_dir, manifest, *, news: bool = True, log=None, diagnostics=None) -> Extras:
     """Read what the report shows besides the evaluation: store-side history, revisions, news, pools.
 
     Parameters
@@ -108,8 +108,11 @@ def gather_extras(run_dir, manifest, *, news: bool = True, log=None) -> Extras:
     run_dir : path
     manifest : harness.backtest.manifest.RunManifest
     news : bool
-        Compute the news decomposition for the run's first dfm or bvar model (a refit at two
-        origins per pair).
+        Compute the news decomposition for one model of each covered type (dfm, bvar; a refit at
+        two origins per pair).
+    diagnostics : DataFrame, optional
+        The run's diagnostics when already read (:attr:`harness.backtest.Ledger.diagnostics`);
+        else the file the manifest names is read.
     log : callable, optional
         Told what is being read (for a progress display).
     """
@@ -152,7 +155,8 @@ def gather_extras(run_dir, manifest, *, news: bool = True, log=None) -> Extras:
                             ex.notes["news"] = f"news decomposition failed ({str(exc).splitlines()[0]})"
     try:
         ex.pool_weights = read_pool_weights(run_dir, manifest)
-        ex.diagnostics = read_diagnostics(run_dir, manifest)
+        ex.diagnostics = (check_diagnostics(diagnostics) if diagnostics is not None and len(diagnostics)
+                          else read_diagnostics(run_dir, manifest))
     except (OSError, ValueError) as exc:
         ex.notes["run files"] = f"a file the manifest names could not be read ({str(exc).splitlines()[0]})"
     return ex

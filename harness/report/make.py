@@ -81,7 +81,7 @@ def make_report(run_dir, *, out=None, since=None, truth=None, sensitivity=None, 
         with ui.stage(f"scoring the earlier review {since}"):
             earlier = evaluate(Path(since), ev.truth, benchmark=ev.benchmark)
     with ui.stage("reading the store: history at the latest origin, revision statistics, news") as st:
-        extras = gather_extras(run_dir, ledger.manifest, news=news, log=st.note)
+        extras = gather_extras(run_dir, ledger.manifest, news=news, log=st.note, diagnostics=ledger.diagnostics)
     if verdicts is None:
         with ui.stage("deciding: band tests, best set, calibration, truths"):
             from harness.verdicts import decide
